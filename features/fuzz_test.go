@@ -46,3 +46,23 @@ func FuzzDecodeWAV(f *testing.F) {
 		}
 	})
 }
+
+// FuzzParseBandStats: never panics; accepted stats are finite and
+// consistent.
+func FuzzParseBandStats(f *testing.F) {
+	f.Add([]byte(`{"version":1,"frames":2,"mean":[0,1],"std":[1,2]}`))
+	f.Add([]byte(`{"version":1,"mean":[],"std":[]}`))
+	f.Add([]byte(`{"version":2}`))
+	f.Add([]byte(`{`))
+	f.Fuzz(func(t *testing.T, data []byte) {
+		s, err := ParseBandStats("fuzz.json", data)
+		if err != nil {
+			return
+		}
+		if len(s.Mean) != len(s.Std) || len(s.Mean) == 0 {
+			t.Fatal("accepted inconsistent stats")
+		}
+		m := make([]float32, len(s.Mean))
+		s.Apply(m)
+	})
+}

@@ -1,0 +1,76 @@
+package features_test
+
+import (
+	"fmt"
+	"math"
+
+	"github.com/pipit-audio/pipit/features"
+)
+
+// Compute the log-mel matrix of one second of audio with the default front
+// end, as a training pipeline does for every clip.
+func ExampleExtractor_Compute() {
+	cfg := features.DefaultConfig()
+	ex, err := features.NewExtractor(cfg)
+	if err != nil {
+		panic(err)
+	}
+	x := make([]float32, cfg.SampleRateHz) // 1 s of a 1 kHz tone
+	for n := range x {
+		x[n] = float32(0.5 * math.Sin(2*math.Pi*1000*float64(n)/float64(cfg.SampleRateHz)))
+	}
+	m, err := ex.Compute(x)
+	if err != nil {
+		panic(err)
+	}
+	fmt.Println("shape (bands, frames):", m.Shape())
+	// Output:
+	// shape (bands, frames): (40, 61)
+}
+
+// Feed audio as it arrives, in chunks of any size, as a device would.
+func ExampleStream_Push() {
+	cfg := features.DefaultConfig()
+	s, err := features.NewStream(cfg)
+	if err != nil {
+		panic(err)
+	}
+	var frames []float32
+	chunk := make([]float32, 100) // 6.25 ms of silence per call
+	for i := 0; i < 160; i++ {
+		frames = s.Push(frames, chunk)
+	}
+	fmt.Println("frames so far:", len(frames)/cfg.Bands)
+	fmt.Printf("band 0 of silence: %.4g dB\n", frames[0])
+	// Output:
+	// frames so far: 61
+	// band 0 of silence: -100 dB
+}
+
+// Convert a recording made at 44.1 kHz to the front end's 16 kHz.
+func ExampleResampler_Resample() {
+	r, err := features.NewResampler(44100, 16000)
+	if err != nil {
+		panic(err)
+	}
+	x := make([]float32, 44100)
+	y := r.Resample(nil, x)
+	fmt.Println(len(y), "samples,", r.Taps(), "taps per sample")
+	// Output:
+	// 16000 samples, 318 taps per sample
+}
+
+// Convert frequencies to mels on both scales.
+func ExampleHzToMel() {
+	fmt.Printf("%.4f %.4f\n", features.HzToMel(features.MelHTK, 1000), features.HzToMel(features.MelSlaney, 1000))
+	// Output:
+	// 999.9855 15.0000
+}
+
+// Decode a WAV file held in memory.
+func ExampleDecodeWAV() {
+	_, err := features.DecodeWAV("clip.wav", []byte("RIFF\x04\x00\x00\x00WAVE"))
+	fmt.Println(err)
+	// Output:
+	// features: clip.wav: no fmt chunk
+}

@@ -50,7 +50,7 @@ type Config struct {
 	MelNorm         string  `json:"mel_norm"`  // "none" or "area"
 	Spectrum        string  `json:"spectrum"`  // "power" or "magnitude"
 	Log             string  `json:"log"`       // "ln" or "db"
-	LogFloor        float64 `json:"log_floor"` // > 0
+	LogFloor        float64 `json:"log_floor"` // ≥ 1e-30
 	TopDB           float64 `json:"top_db"`    // "db" only; 0 disables the clip
 }
 
@@ -104,8 +104,8 @@ func (c Config) Validate() error {
 		return badConfig("spectrum %q, want %q or %q", c.Spectrum, SpectrumPower, SpectrumMagnitude)
 	case c.Log != LogNatural && c.Log != LogDecibel:
 		return badConfig("log %q, want %q or %q", c.Log, LogNatural, LogDecibel)
-	case !(c.LogFloor > 0) || math.IsInf(c.LogFloor, 0):
-		return badConfig("log floor %g, want a positive finite value", c.LogFloor)
+	case !(c.LogFloor >= 1e-30) || math.IsInf(c.LogFloor, 0):
+		return badConfig("log floor %g, want a finite value ≥ 1e-30", c.LogFloor)
 	case !(c.TopDB >= 0) || math.IsInf(c.TopDB, 0):
 		return badConfig("top dB %g, want 0 (off) or a positive finite value", c.TopDB)
 	case !(c.FMinHz >= 0) || !(c.FMaxHz > c.FMinHz):

@@ -6,6 +6,8 @@ import (
 
 	"gonum.org/v1/gonum/dsp/fourier"
 	"gorgonia.org/tensor"
+
+	"github.com/pipit-audio/pipit/internal/fft"
 )
 
 // Extractor computes log-mel frames for one [Config]. It holds the window,
@@ -16,7 +18,8 @@ type Extractor struct {
 	cfg     Config
 	window  []float64 // (Window)
 	filters []MelFilter
-	fft     *fourier.FFT
+	fft     *fourier.FFT // any length; the reference path
+	fast    *fft.Real    // power-of-two lengths; nil otherwise
 	buf     []float64    // (FFTSize) windowed, zero-padded frame
 	coeffs  []complex128 // (FFTSize/2+1)
 	spec    []float64    // (FFTSize/2+1) power or magnitude
@@ -35,7 +38,9 @@ func NewExtractor(cfg Config) (*Extractor, error) {
 		return nil, err
 	}
 	nb := cfg.FFTSize/2 + 1
+	fast, _ := fft.NewReal(cfg.FFTSize) // nil unless a power of two
 	return &Extractor{
+		fast:    fast,
 		cfg:     cfg,
 		window:  w,
 		filters: MelFilterbank(cfg.MelScale, cfg.Bands, cfg.FFTSize, cfg.SampleRateHz, cfg.FMinHz, cfg.FMaxHz, cfg.MelNorm == MelNormArea),
@@ -59,21 +64,31 @@ func (e *Extractor) Frame(dst, frame []float32) {
 		panic(fmt.Sprintf("features: Extractor.Frame: len(frame)=%d len(dst)=%d, want %d and %d", len(frame), len(dst), e.cfg.WindowSamples, e.cfg.Bands))
 	}
 	buf := e.buf
-	for i := range buf {
-		buf[i] = 0
+	if e.offset > 0 { // zero padding around the window; otherwise all overwritten
+		clear(buf)
 	}
+	win := buf[e.offset : e.offset+len(e.window)]
 	for i, w := range e.window {
-		buf[e.offset+i] = float64(frame[i]) * w
+		win[i] = float64(frame[i]) * w
 	}
-	e.fft.Coefficients(e.coeffs, buf)
-	if e.cfg.Spectrum == SpectrumPower {
-		for k, c := range e.coeffs {
-			re, im := real(c), imag(c)
-			e.spec[k] = re*re + im*im
+	if e.fast != nil {
+		e.fast.Power(e.spec, buf)
+		if e.cfg.Spectrum == SpectrumMagnitude {
+			for k, p := range e.spec {
+				e.spec[k] = math.Sqrt(p)
+			}
 		}
 	} else {
-		for k, c := range e.coeffs {
-			e.spec[k] = math.Hypot(real(c), imag(c))
+		e.fft.Coefficients(e.coeffs, buf)
+		if e.cfg.Spectrum == SpectrumPower {
+			for k, c := range e.coeffs {
+				re, im := real(c), imag(c)
+				e.spec[k] = re*re + im*im
+			}
+		} else {
+			for k, c := range e.coeffs {
+				e.spec[k] = math.Hypot(real(c), imag(c))
+			}
 		}
 	}
 	floor := e.cfg.LogFloor
@@ -85,12 +100,15 @@ func (e *Extractor) Frame(dst, frame []float32) {
 		for i, w := range f.Weights {
 			v += w * s[i]
 		}
-		v = math.Max(v, floor)
+		if !(v > floor) { // also maps NaN to the floor
+			v = floor
+		}
+		v = lnPositive(v)
 		if db {
-			v = 10 * math.Log10(v)
-			peak = math.Max(peak, v)
-		} else {
-			v = math.Log(v)
+			v *= 10 / math.Ln10
+			if v > peak {
+				peak = v
+			}
 		}
 		dst[m] = float32(v)
 	}
@@ -129,15 +147,19 @@ func (e *Extractor) Compute(samples []float32) (*tensor.Dense, error) {
 	}
 	for t := 0; t < nf; t++ {
 		start := t*e.cfg.HopSamples - pad
-		for i := range frame {
-			j := start + i
-			if j >= 0 && j < len(samples) {
-				frame[i] = samples[j]
-			} else {
-				frame[i] = 0
+		if start >= 0 && start+len(frame) <= len(samples) {
+			e.Frame(col, samples[start:start+len(frame)])
+		} else {
+			for i := range frame {
+				j := start + i
+				if j >= 0 && j < len(samples) {
+					frame[i] = samples[j]
+				} else {
+					frame[i] = 0
+				}
 			}
+			e.Frame(col, frame)
 		}
-		e.Frame(col, frame)
 		for m, v := range col {
 			out[m*nf+t] = v
 		}

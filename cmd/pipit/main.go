@@ -1,0 +1,41 @@
+// Command pipit takes labelled sound recordings to a verified int8
+// classifier for a microcontroller. Run "pipit help" for the commands.
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"io"
+	"os"
+
+	"github.com/spf13/cobra"
+)
+
+func main() {
+	if err := newRootCmd(os.Stdout, os.Stderr).Execute(); err != nil {
+		fmt.Fprintln(os.Stderr, "pipit:", err)
+		os.Exit(1)
+	}
+}
+
+// newRootCmd builds the command tree; stdout and stderr are parameters so
+// tests can run commands in-process.
+func newRootCmd(stdout, stderr io.Writer) *cobra.Command {
+	root := &cobra.Command{
+		Use:           "pipit",
+		Short:         "From labelled sound recordings to a verified int8 classifier for a microcontroller",
+		SilenceUsage:  true,
+		SilenceErrors: true,
+	}
+	root.SetOut(stdout)
+	root.SetErr(stderr)
+	root.AddCommand(newMelspecCmd(), newDemoCmd())
+	return root
+}
+
+// printJSON writes v as indented JSON to w.
+func printJSON(w io.Writer, v any) error {
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(v)
+}

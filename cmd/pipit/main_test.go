@@ -1,0 +1,110 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"testing"
+)
+
+// run executes pipit in-process with args and returns stdout.
+func run(t *testing.T, args ...string) (string, error) {
+	t.Helper()
+	var out, errOut bytes.Buffer
+	cmd := newRootCmd(&out, &errOut)
+	cmd.SetArgs(args)
+	err := cmd.Execute()
+	return out.String(), err
+}
+
+func TestMelspecOnEveryFixture(t *testing.T) {
+	paths, _ := filepath.Glob(filepath.Join("..", "..", "testdata", "wav", "*.wav"))
+	if len(paths) < 10 {
+		t.Fatalf("found %d fixtures", len(paths))
+	}
+	dir := t.TempDir()
+	for _, p := range paths {
+		name := strings.TrimSuffix(filepath.Base(p), ".wav")
+		t.Run(name, func(t *testing.T) {
+			prefix := filepath.Join(dir, name)
+			out, err := run(t, "melspec", p, "--out", prefix, "--json")
+			if err != nil {
+				t.Fatal(err)
+			}
+			var rep melspecReport
+			if err := json.Unmarshal([]byte(out), &rep); err != nil {
+				t.Fatalf("--json output %q: %v", out, err)
+			}
+			if rep.Bands != 40 || rep.Settings.SampleRateHz != 16000 || rep.Settings.FMaxHz != 8000 {
+				t.Errorf("report %+v: want 40 bands at 16 kHz to 8 kHz", rep)
+			}
+			csv, err := os.ReadFile(prefix + ".csv")
+			if err != nil {
+				t.Fatal(err)
+			}
+			lines := strings.Split(strings.TrimSpace(string(csv)), "\n")
+			if len(lines) != rep.Frames {
+				t.Fatalf("CSV has %d rows, report says %d frames", len(lines), rep.Frames)
+			}
+			for _, l := range lines {
+				cols := strings.Split(l, ",")
+				if len(cols) != 40 {
+					t.Fatalf("CSV row has %d columns, want 40", len(cols))
+				}
+				if _, err := strconv.ParseFloat(cols[0], 64); err != nil {
+					t.Fatalf("CSV value %q: %v", cols[0], err)
+				}
+			}
+			png, err := os.ReadFile(prefix + ".png")
+			if err != nil || !bytes.HasPrefix(png, []byte("\x89PNG\r\n\x1a\n")) {
+				t.Fatalf("PNG missing or not a PNG (err %v)", err)
+			}
+		})
+	}
+}
+
+func TestMelspecFlagsAndErrors(t *testing.T) {
+	dir := t.TempDir()
+	wav := filepath.Join("..", "..", "testdata", "wav", "pcm_s16_16k.wav")
+	out, err := run(t, "melspec", wav, "--out", filepath.Join(dir, "x"), "--json", "--rate", "8000", "--bands", "20", "--mel", "slaney", "--log", "ln", "--window", "256", "--hop", "128")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rep melspecReport
+	json.Unmarshal([]byte(out), &rep)
+	if rep.Settings.FMaxHz != 4000 || rep.Bands != 20 || rep.Settings.MelScale != "slaney" || rep.Settings.Log != "ln" {
+		t.Errorf("flags not applied: %+v", rep.Settings)
+	}
+	// A bad file is reported by name and leaves an existing output alone.
+	bad := filepath.Join(dir, "bad.wav")
+	os.WriteFile(bad, []byte("RIFF\x04\x00\x00\x00WAVE"), 0o644)
+	good := filepath.Join(dir, "keep")
+	os.WriteFile(good+".csv", []byte("old"), 0o644)
+	if _, err := run(t, "melspec", bad, "--out", good); err == nil || !strings.Contains(err.Error(), "bad.wav") {
+		t.Errorf("bad WAV: error %v, want one naming bad.wav", err)
+	}
+	if b, _ := os.ReadFile(good + ".csv"); string(b) != "old" {
+		t.Errorf("existing output overwritten after an error: %q", b)
+	}
+	if _, err := run(t, "melspec", wav, "--fmax", "12000"); err == nil || !strings.Contains(err.Error(), "Nyquist") {
+		t.Errorf("fmax above Nyquist: error %v", err)
+	}
+}
+
+func TestDemoRuns(t *testing.T) {
+	dir := t.TempDir()
+	out, err := run(t, "demo", "--out", dir, "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rep demoReport
+	if err := json.Unmarshal([]byte(out), &rep); err != nil {
+		t.Fatal(err)
+	}
+	if rep.Frames != 186 || rep.Bands != 40 { // 1 + (48000-512)/256
+		t.Errorf("demo matrix %d×%d, want 186 frames × 40 bands", rep.Frames, rep.Bands)
+	}
+}

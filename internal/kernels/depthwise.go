@@ -1,0 +1,76 @@
+package kernels
+
+// DepthwiseForward computes out += depthwise(x, w) for one sample with
+// multiplier 1: x (H, W, C), w (KH, KW, C), out (OH, OW, C),
+// out[oh][ow][c] += Σ_{kh,kw} x[oh·SH−PadTop+kh][ow·SW−PadLeft+kw][c]·w[kh][kw][c]
+// (MobileNets eq. 3), zero outside x. It panics on short slices.
+func DepthwiseForward(g ConvGeom, x, w, out []float32) {
+	checkLen("DepthwiseForward x", len(x), g.H*g.W*g.C)
+	checkLen("DepthwiseForward w", len(w), g.KH*g.KW*g.C)
+	checkLen("DepthwiseForward out", len(out), g.OH*g.OW*g.C)
+	c := g.C
+	for oh := 0; oh < g.OH; oh++ {
+		for ow := 0; ow < g.OW; ow++ {
+			o := out[(oh*g.OW+ow)*c : (oh*g.OW+ow+1)*c]
+			for kh := 0; kh < g.KH; kh++ {
+				ih := oh*g.SH - g.PadTop + kh
+				if ih < 0 || ih >= g.H {
+					continue
+				}
+				for kw := 0; kw < g.KW; kw++ {
+					iw := ow*g.SW - g.PadLeft + kw
+					if iw < 0 || iw >= g.W {
+						continue
+					}
+					xs := x[(ih*g.W+iw)*c : (ih*g.W+iw+1)*c]
+					ws := w[(kh*g.KW+kw)*c : (kh*g.KW+kw+1)*c]
+					xs, ws = xs[:len(o)], ws[:len(o)]
+					for ch := range o {
+						o[ch] += xs[ch] * ws[ch]
+					}
+				}
+			}
+		}
+	}
+}
+
+// DepthwiseBackward accumulates the gradients of [DepthwiseForward] for
+// one sample: dx += ∂/∂x and dw += ∂/∂w of Σ dout·out. dx may be nil
+// (first layer). It panics on short slices.
+func DepthwiseBackward(g ConvGeom, x, w, dout, dx, dw []float32) {
+	checkLen("DepthwiseBackward x", len(x), g.H*g.W*g.C)
+	checkLen("DepthwiseBackward dout", len(dout), g.OH*g.OW*g.C)
+	checkLen("DepthwiseBackward dw", len(dw), g.KH*g.KW*g.C)
+	c := g.C
+	for oh := 0; oh < g.OH; oh++ {
+		for ow := 0; ow < g.OW; ow++ {
+			d := dout[(oh*g.OW+ow)*c : (oh*g.OW+ow+1)*c]
+			for kh := 0; kh < g.KH; kh++ {
+				ih := oh*g.SH - g.PadTop + kh
+				if ih < 0 || ih >= g.H {
+					continue
+				}
+				for kw := 0; kw < g.KW; kw++ {
+					iw := ow*g.SW - g.PadLeft + kw
+					if iw < 0 || iw >= g.W {
+						continue
+					}
+					xs := x[(ih*g.W+iw)*c : (ih*g.W+iw+1)*c]
+					dws := dw[(kh*g.KW+kw)*c : (kh*g.KW+kw+1)*c]
+					xs, dws = xs[:len(d)], dws[:len(d)]
+					for ch, v := range d {
+						dws[ch] += v * xs[ch] // out = x·w ⇒ ∂/∂w = x
+					}
+					if dx != nil {
+						ws := w[(kh*g.KW+kw)*c : (kh*g.KW+kw+1)*c]
+						dxs := dx[(ih*g.W+iw)*c : (ih*g.W+iw+1)*c]
+						ws, dxs = ws[:len(d)], dxs[:len(d)]
+						for ch, v := range d {
+							dxs[ch] += v * ws[ch] // ∂/∂x = w
+						}
+					}
+				}
+			}
+		}
+	}
+}

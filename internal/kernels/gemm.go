@@ -1,0 +1,141 @@
+// Package kernels holds pipit's float32 compute kernels: matrix products
+// in the three layouts training needs, and the im2col/col2im transforms of
+// channels-last convolution. Every function here is the portable pure-Go
+// path; each has a naive reference in the tests that it must match.
+//
+// Matrices are row-major []float32 with the shapes given in each doc
+// comment. No function allocates.
+package kernels
+
+import "fmt"
+
+func checkLen(name string, got, want int) {
+	if got < want {
+		panic(fmt.Sprintf("kernels: %s: slice of %d elements, need %d", name, got, want))
+	}
+}
+
+// GemmNT computes C += A·Bᵀ with A (M, K), B (N, K), C (M, N): every output
+// is a dot product of two contiguous rows. It panics on short slices.
+func GemmNT(m, n, k int, a, b, c []float32) {
+	checkLen("GemmNT a", len(a), m*k)
+	checkLen("GemmNT b", len(b), n*k)
+	checkLen("GemmNT c", len(c), m*n)
+	i := 0
+	for ; i+2 <= m; i += 2 {
+		a0, a1 := a[i*k:i*k+k], a[(i+1)*k:(i+1)*k+k]
+		c0, c1 := c[i*n:i*n+n], c[(i+1)*n:(i+1)*n+n]
+		j := 0
+		for ; j+2 <= n; j += 2 {
+			b0, b1 := b[j*k:j*k+k], b[(j+1)*k:(j+1)*k+k]
+			b0, b1 = b0[:len(a0)], b1[:len(a0)]
+			a1 := a1[:len(a0)]
+			var s00, s01, s10, s11 float32
+			for p, x0 := range a0 {
+				x1 := a1[p]
+				y0, y1 := b0[p], b1[p]
+				s00 += x0 * y0
+				s01 += x0 * y1
+				s10 += x1 * y0
+				s11 += x1 * y1
+			}
+			c0[j] += s00
+			c0[j+1] += s01
+			c1[j] += s10
+			c1[j+1] += s11
+		}
+		for ; j < n; j++ {
+			b0 := b[j*k : j*k+k]
+			var s0, s1 float32
+			for p, y := range b0 {
+				s0 += a0[p] * y
+				s1 += a1[p] * y
+			}
+			c0[j] += s0
+			c1[j] += s1
+		}
+	}
+	for ; i < m; i++ {
+		a0 := a[i*k : i*k+k]
+		c0 := c[i*n : i*n+n]
+		for j := range c0 {
+			b0 := b[j*k : j*k+k]
+			b0 = b0[:len(a0)]
+			var s float32
+			for p, x := range a0 {
+				s += x * b0[p]
+			}
+			c0[j] += s
+		}
+	}
+}
+
+// GemmNN computes C += A·B with A (M, K), B (K, N), C (M, N), as rank-one
+// updates of C's rows (contiguous inner loops over N). It panics on short
+// slices.
+func GemmNN(m, n, k int, a, b, c []float32) {
+	checkLen("GemmNN a", len(a), m*k)
+	checkLen("GemmNN b", len(b), k*n)
+	checkLen("GemmNN c", len(c), m*n)
+	for i := 0; i < m; i++ {
+		ci := c[i*n : i*n+n]
+		ai := a[i*k : i*k+k]
+		p := 0
+		for ; p+2 <= k; p += 2 {
+			x0, x1 := ai[p], ai[p+1]
+			b0, b1 := b[p*n:p*n+n], b[(p+1)*n:(p+1)*n+n]
+			b0, b1 = b0[:len(ci)], b1[:len(ci)]
+			for j := range ci {
+				ci[j] += x0*b0[j] + x1*b1[j]
+			}
+		}
+		for ; p < k; p++ {
+			x := ai[p]
+			if x == 0 {
+				continue
+			}
+			bp := b[p*n : p*n+n]
+			bp = bp[:len(ci)]
+			for j := range ci {
+				ci[j] += x * bp[j]
+			}
+		}
+	}
+}
+
+// GemmTN computes C += Aᵀ·B with A (K, M), B (K, N), C (M, N): the weight
+// gradient of a layer, Σ over positions of dout ⊗ input. It panics on short
+// slices.
+func GemmTN(m, n, k int, a, b, c []float32) {
+	checkLen("GemmTN a", len(a), k*m)
+	checkLen("GemmTN b", len(b), k*n)
+	checkLen("GemmTN c", len(c), m*n)
+	p := 0
+	for ; p+2 <= k; p += 2 {
+		a0, a1 := a[p*m:p*m+m], a[(p+1)*m:(p+1)*m+m]
+		b0, b1 := b[p*n:p*n+n], b[(p+1)*n:(p+1)*n+n]
+		for i := range a0 {
+			x0, x1 := a0[i], a1[i]
+			ci := c[i*n : i*n+n]
+			ci = ci[:len(b0)]
+			b1 := b1[:len(b0)]
+			for j, y := range b0 {
+				ci[j] += x0*y + x1*b1[j]
+			}
+		}
+	}
+	for ; p < k; p++ {
+		ap := a[p*m : p*m+m]
+		bp := b[p*n : p*n+n]
+		for i, x := range ap {
+			if x == 0 {
+				continue
+			}
+			ci := c[i*n : i*n+n]
+			ci = ci[:len(bp)]
+			for j, y := range bp {
+				ci[j] += x * y
+			}
+		}
+	}
+}

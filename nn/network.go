@@ -29,7 +29,17 @@ type Network struct {
 // batch norm γ = 1, β = 0, running variance 1). It returns an error
 // wrapping [ErrShape] if a layer cannot take its input.
 func New(in Shape, layers []Layer, seed uint64) (*Network, error) {
-	if !in.valid() {
+	return newBounded(in, layers, seed, MaxParams)
+}
+
+// MaxParams bounds the trainable parameters of a network New builds
+// (2^28 float32 values, 1 GiB).
+const MaxParams = 1 << 28
+
+// newBounded is New with a bound on the parameter count, checked before
+// anything is allocated.
+func newBounded(in Shape, layers []Layer, seed uint64, maxParams int) (*Network, error) {
+	if !in.valid() || in.H > 1<<16 || in.W > 1<<16 || in.C > 1<<16 {
 		return nil, shapeErr("input shape %v", in)
 	}
 	if len(layers) == 0 {
@@ -51,6 +61,23 @@ func New(in Shape, layers []Layer, seed uint64) (*Network, error) {
 		cur = out
 		specs = append(specs, l.params())
 		states = append(states, l.state())
+	}
+	total := 0
+	for _, group := range [][][]ParamSpec{specs, states} {
+		for _, ps := range group {
+			for _, s := range ps {
+				size := 1
+				for _, d := range s.Shape {
+					if d < 1 || size > maxParams/d {
+						return nil, shapeErr("more than %d parameters", maxParams)
+					}
+					size *= d
+				}
+				if total += size; total > maxParams {
+					return nil, shapeErr("more than %d parameters", maxParams)
+				}
+			}
+		}
 	}
 	p := n.Params
 	for i, ps := range specs {

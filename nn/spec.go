@@ -99,6 +99,10 @@ func ParseSpec(text string) (layers []Layer, in Shape, ok bool, err error) {
 // line it must agree with in (when in is non-zero); a zero in takes the
 // spec's.
 func FromSpec(text string, in Shape, seed uint64) (*Network, error) {
+	return fromSpecBounded(text, in, seed, MaxParams)
+}
+
+func fromSpecBounded(text string, in Shape, seed uint64, maxParams int) (*Network, error) {
 	layers, specIn, ok, err := ParseSpec(text)
 	if err != nil {
 		return nil, err
@@ -111,7 +115,7 @@ func FromSpec(text string, in Shape, seed uint64) (*Network, error) {
 	case in == (Shape{}):
 		return nil, shapeErr("spec has no input line and no input shape was given")
 	}
-	return New(in, layers, seed)
+	return newBounded(in, layers, seed, maxParams)
 }
 
 // specArgs reads and consumes key=value arguments, keeping the first error.

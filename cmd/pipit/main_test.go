@@ -108,3 +108,47 @@ func TestDemoRuns(t *testing.T) {
 		t.Errorf("demo matrix %d×%d, want 186 frames × 40 bands", rep.Frames, rep.Bands)
 	}
 }
+
+func TestBudget(t *testing.T) {
+	for _, arch := range []string{"pooled", "strided", "separable"} {
+		out, err := run(t, "budget", "--arch", arch, "--json")
+		if err != nil {
+			t.Fatal(err)
+		}
+		var rep map[string]any
+		if err := json.Unmarshal([]byte(out), &rep); err != nil {
+			t.Fatal(err)
+		}
+		for _, k := range []string{"macs", "params", "flash_bytes", "ram_bytes", "macs_per_second", "fits"} {
+			if _, ok := rep[k]; !ok {
+				t.Errorf("%s: JSON lacks %q", arch, k)
+			}
+		}
+	}
+	// A spec file: 8x8x1 → conv 4 (3x3 valid: 6x6x4) → dense 2.
+	// MACs: 6·6·4·9 = 1296 + 144·2 = 288 → 1584. At 1 s, 50 % overlap:
+	// 3168 MAC/s.
+	dir := t.TempDir()
+	p := filepath.Join(dir, "tiny.spec")
+	os.WriteFile(p, []byte("input shape=8x8x1\nconv filters=4 kernel=3\nrelu\ndense units=2\n"), 0o644)
+	out, err := run(t, "budget", "--arch", p, "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rep budgetReport
+	json.Unmarshal([]byte(out), &rep)
+	if rep.MACs != 1584 || rep.MACsPerSecond != 3168 || !rep.Fits {
+		t.Errorf("spec file budget: %d MACs, %g MAC/s, fits %v; want 1584, 3168, true", rep.MACs, rep.MACsPerSecond, rep.Fits)
+	}
+	text, err := run(t, "budget", "--arch", "pooled")
+	if err != nil || !strings.Contains(text, "DOES NOT FIT") || !strings.Contains(text, "RAM peak") {
+		t.Errorf("pooled text report (err %v) should show the compute overrun and the RAM peak:\n%s", err, text)
+	}
+	if _, err := run(t, "budget", "--arch", "nosuch"); err == nil || !strings.Contains(err.Error(), "neither") {
+		t.Errorf("unknown arch: error %v", err)
+	}
+	os.WriteFile(p, []byte("conv filters=4\n"), 0o644)
+	if _, err := run(t, "budget", "--arch", p); err == nil || !strings.Contains(err.Error(), "tiny.spec") {
+		t.Errorf("bad spec: error %v, want one naming the file", err)
+	}
+}

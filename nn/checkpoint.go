@@ -194,3 +194,22 @@ func ParseCheckpoint(name string, data []byte) (*Checkpoint, error) {
 	tr.Opt.Steps = h.Steps
 	return &Checkpoint{Trainer: tr, Meta: h.Meta}, nil
 }
+
+// LoadWeights copies the parameters and batch-norm statistics of the
+// checkpoint at path into net. The checkpoint's spec must describe the
+// same network (same layers, shapes and input); otherwise the error wraps
+// [ErrCheckpointMismatch] and net is unchanged.
+func LoadWeights(net *Network, path string) error {
+	ck, err := ReadCheckpoint(path)
+	if err != nil {
+		return err
+	}
+	src := ck.Trainer.Net
+	defer src.Close()
+	if src.Spec() != net.Spec() {
+		return fmt.Errorf("%w: %s holds a different network:\n%s\nwant:\n%s", ErrCheckpointMismatch, path, src.Spec(), net.Spec())
+	}
+	copy(net.Params.Data, src.Params.Data)
+	copy(net.Params.State, src.Params.State)
+	return nil
+}

@@ -222,6 +222,19 @@ func TestCheckpointDamage(t *testing.T) {
 			t.Errorf("%s: error %q does not name the file", name, err)
 		}
 	}
+	// Loading into a different network is a mismatch, into the same one works.
+	p0 := filepath.Join(t.TempDir(), "w.ckpt")
+	os.WriteFile(p0, good, 0o644)
+	other, _ := Arch("separable", 4, 1)
+	defer other.Close()
+	if err := LoadWeights(other, p0); !errors.Is(err, ErrCheckpointMismatch) {
+		t.Errorf("LoadWeights into another network: error %v, want ErrCheckpointMismatch", err)
+	}
+	same, _ := FromSpec(tinySpec, Shape{}, 99)
+	defer same.Close()
+	if err := LoadWeights(same, p0); err != nil || !sameBits(same.Params.Data, tr.Net.Params.Data) {
+		t.Errorf("LoadWeights into the same network: %v", err)
+	}
 	// Writing over an existing file is atomic: a failed write keeps it.
 	dir := t.TempDir()
 	p := filepath.Join(dir, "a.ckpt")

@@ -211,3 +211,24 @@ func BenchmarkDecodeWAV(b *testing.B) {
 		}
 	}
 }
+
+func TestWriteWAVFileRoundTrip(t *testing.T) {
+	p := filepath.Join(t.TempDir(), "out.wav")
+	x := []float32{0, 0.5, -0.5, 1, -1, 2} // 2 clips to 1
+	if err := WriteWAVFile(p, x, 22050); err != nil {
+		t.Fatal(err)
+	}
+	a, err := ReadWAVFile(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if a.SampleRateHz != 22050 || a.BitDepth != 16 || len(a.Samples) != len(x) {
+		t.Fatalf("read back %d Hz %d bit %d samples", a.SampleRateHz, a.BitDepth, len(a.Samples))
+	}
+	// 16-bit step 1/32768 (read) vs 1/32767 (write scale)
+	for i, want := range []float32{0, 0.5, -0.5, 1, -1, 1} {
+		if math.Abs(float64(a.Samples[i]-want)) > 1.0/16384 {
+			t.Errorf("sample %d = %g, want %g", i, a.Samples[i], want)
+		}
+	}
+}

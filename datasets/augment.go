@@ -1,0 +1,80 @@
+package datasets
+
+import (
+	"math"
+	"math/rand/v2"
+)
+
+// Augment describes the random changes made to training windows. Every
+// draw comes from the RNG [Set.Sample] seeds per (seed, epoch, window), so
+// runs are reproducible.
+type Augment struct {
+	ShiftSeconds float64 `json:"shift_seconds"` // shift the window by up to ± this, zero-filled at the clip's ends
+	GainDB       float64 `json:"gain_db"`       // scale by up to ± this
+	NoiseProb    float64 `json:"noise_prob"`    // probability of mixing in pink noise
+	MinSNRdB     float64 `json:"min_snr_db"`    // SNR range of the window over that noise
+	MaxSNRdB     float64 `json:"max_snr_db"`
+	// Time and frequency masks on the normalised log-mel (SpecAugment,
+	// Park et al. 2019, arXiv:1904.08779): each of TimeMasks masks sets up
+	// to TimeMaskFrames consecutive frames to 0 (the band mean after
+	// normalisation); likewise FreqMasks for up to FreqMaskBands bands.
+	TimeMasks, TimeMaskFrames int
+	FreqMasks, FreqMaskBands  int
+}
+
+// DefaultAugment returns pipit's default training augmentation.
+func DefaultAugment() *Augment {
+	return &Augment{ShiftSeconds: 0.1, GainDB: 6, NoiseProb: 0.5, MinSNRdB: 5, MaxSNRdB: 30,
+		TimeMasks: 1, TimeMaskFrames: 6, FreqMasks: 1, FreqMaskBands: 4}
+}
+
+// audio writes an augmented copy of clip[start : start+len(dst)] into dst.
+func (a *Augment) audio(dst, clip []float32, start, rateHz int, rng *rand.Rand) {
+	shift := 0
+	if a.ShiftSeconds > 0 {
+		m := int(a.ShiftSeconds * float64(rateHz))
+		shift = rng.IntN(2*m+1) - m
+	}
+	for i := range dst {
+		j := start + shift + i
+		if j >= 0 && j < len(clip) {
+			dst[i] = clip[j]
+		} else {
+			dst[i] = 0
+		}
+	}
+	g := float32(1)
+	if a.GainDB > 0 {
+		g = float32(math.Pow(10, (2*rng.Float64()-1)*a.GainDB/20))
+	}
+	var p float64
+	for i, v := range dst {
+		v *= g
+		dst[i] = v
+		p += float64(v) * float64(v)
+	}
+	if a.NoiseProb > 0 && rng.Float64() < a.NoiseProb && p > 0 {
+		noise := pinkNoise(len(dst), rng)
+		snr := a.MinSNRdB + rng.Float64()*(a.MaxSNRdB-a.MinSNRdB)
+		k := math.Sqrt(p / float64(len(dst)) / power(noise) / math.Pow(10, snr/10))
+		for i := range dst {
+			dst[i] += float32(k * noise[i])
+		}
+	}
+}
+
+// masks applies the time and frequency masks to a (bands, frames) input.
+func (a *Augment) masks(x []float32, bands, frames int, rng *rand.Rand) {
+	for k := 0; k < a.TimeMasks && a.TimeMaskFrames > 0; k++ {
+		w := rng.IntN(a.TimeMaskFrames + 1)
+		t0 := rng.IntN(max(1, frames-w+1))
+		for b := 0; b < bands; b++ {
+			clear(x[b*frames+t0 : b*frames+min(frames, t0+w)])
+		}
+	}
+	for k := 0; k < a.FreqMasks && a.FreqMaskBands > 0; k++ {
+		w := rng.IntN(a.FreqMaskBands + 1)
+		b0 := rng.IntN(max(1, bands-w+1))
+		clear(x[b0*frames : min(bands, b0+w)*frames])
+	}
+}

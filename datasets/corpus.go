@@ -1,0 +1,275 @@
+package datasets
+
+import (
+	"bytes"
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"sort"
+	"strconv"
+	"strings"
+)
+
+// Clip is one labelled recording, or a labelled span of one.
+type Clip struct {
+	ID    int     // index in Corpus.Clips
+	Path  string  // file path as resolved (relative paths joined to the manifest's folder)
+	Label int     // index into Corpus.Classes
+	Fold  int     // 0-based fold; meaningful when Corpus.HasFolds
+	Start float64 // seconds; 0 when the manifest gives no span
+	End   float64 // seconds; 0 means to the end of the file
+	Group string  // source recording: clips sharing a group never straddle folds
+}
+
+// Corpus is a set of labelled clips with their class names.
+type Corpus struct {
+	Source   string   // manifest path or folder
+	Classes  []string // sorted class names
+	Clips    []Clip
+	HasFolds bool // folds came from the manifest or AssignFolds
+	Folds    int  // number of folds when HasFolds
+}
+
+// ReadManifest reads a CSV manifest with a header row naming at least the
+// columns path and label, and optionally fold, start, end and the column
+// named by groupColumn (empty: "group" if present). Paths are relative to
+// the manifest's folder unless absolute; extra columns are ignored; lines
+// starting with '#' are comments. Folds in the file are integers from 0;
+// every row must then have one. A clip's group is the group column if
+// given, else its path, so spans cut from one file share a group. Every
+// file must exist; errors name the manifest and the line.
+func ReadManifest(path, groupColumn string) (*Corpus, error) {
+	data, err := os.ReadFile(path)
+	if err != nil {
+		return nil, fmt.Errorf("datasets: %w", err)
+	}
+	c, err := ParseManifest(path, data, filepath.Dir(path), groupColumn)
+	if err != nil {
+		return nil, err
+	}
+	for _, cl := range c.Clips {
+		if _, err := os.Stat(cl.Path); err != nil {
+			return nil, &ManifestError{Name: path, Line: cl.ID + 2, Reason: fmt.Sprintf("file %s: %v", cl.Path, errors.Unwrap(err))}
+		}
+	}
+	return c, nil
+}
+
+// ParseManifest parses manifest bytes (see [ReadManifest]) without touching
+// the file system; base is the folder relative paths are joined to. Line
+// numbers in errors count the header as line 1 and assume one record per
+// line.
+func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus, error) {
+	r := csv.NewReader(bytes.NewReader(data))
+	r.Comment = '#'
+	r.FieldsPerRecord = -1
+	r.TrimLeadingSpace = true
+	header, err := r.Read()
+	if err == io.EOF {
+		return nil, &ManifestError{Name: name, Line: 1, Reason: "empty manifest"}
+	}
+	if err != nil {
+		return nil, &ManifestError{Name: name, Line: 1, Reason: err.Error()}
+	}
+	col := map[string]int{}
+	for i, h := range header {
+		col[strings.ToLower(strings.TrimSpace(h))] = i
+	}
+	for _, need := range []string{"path", "label"} {
+		if _, ok := col[need]; !ok {
+			return nil, &ManifestError{Name: name, Line: 1, Reason: fmt.Sprintf("header %q has no %q column", strings.Join(header, ","), need)}
+		}
+	}
+	if groupColumn == "" {
+		if _, ok := col["group"]; ok {
+			groupColumn = "group"
+		}
+	} else if _, ok := col[strings.ToLower(groupColumn)]; !ok {
+		return nil, &ManifestError{Name: name, Line: 1, Reason: fmt.Sprintf("no group column %q", groupColumn)}
+	}
+	groupColumn = strings.ToLower(groupColumn)
+	type row struct {
+		line               int
+		path, label, group string
+		fold               int
+		hasFold            bool
+		start, end         float64
+	}
+	var rows []row
+	line := 1
+	for {
+		rec, err := r.Read()
+		if err == io.EOF {
+			break
+		}
+		line++
+		if err != nil {
+			return nil, &ManifestError{Name: name, Line: line, Reason: err.Error()}
+		}
+		get := func(k string) string {
+			if i, ok := col[k]; ok && i < len(rec) {
+				return strings.TrimSpace(rec[i])
+			}
+			return ""
+		}
+		rw := row{line: line, path: get("path"), label: get("label")}
+		if rw.path == "" || rw.label == "" {
+			return nil, &ManifestError{Name: name, Line: line, Reason: "empty path or label"}
+		}
+		if f := get("fold"); f != "" {
+			n, err := strconv.Atoi(f)
+			if err != nil || n < 0 || n > 1000 {
+				return nil, &ManifestError{Name: name, Line: line, Reason: fmt.Sprintf("fold %q is not an integer in 0..1000", f)}
+			}
+			rw.fold, rw.hasFold = n, true
+		}
+		for _, k := range []string{"start", "end"} {
+			if v := get(k); v != "" {
+				x, err := strconv.ParseFloat(v, 64)
+				if err != nil || x < 0 || math.IsInf(x, 0) || math.IsNaN(x) {
+					return nil, &ManifestError{Name: name, Line: line, Reason: fmt.Sprintf("%s %q is not a non-negative number of seconds", k, v)}
+				}
+				if k == "start" {
+					rw.start = x
+				} else {
+					rw.end = x
+				}
+			}
+		}
+		if rw.end != 0 && rw.end <= rw.start {
+			return nil, &ManifestError{Name: name, Line: line, Reason: fmt.Sprintf("end %g s is not after start %g s", rw.end, rw.start)}
+		}
+		p := rw.path
+		if !filepath.IsAbs(p) {
+			p = filepath.Join(base, filepath.FromSlash(p))
+		}
+		rw.path = p
+		rw.group = p
+		if groupColumn != "" {
+			if g := get(groupColumn); g != "" {
+				rw.group = g
+			}
+		}
+		rows = append(rows, rw)
+	}
+	if len(rows) == 0 {
+		return nil, &ManifestError{Name: name, Line: line, Reason: "no clips"}
+	}
+	withFold := 0
+	for _, rw := range rows {
+		if rw.hasFold {
+			withFold++
+		}
+	}
+	if withFold != 0 && withFold != len(rows) {
+		for _, rw := range rows {
+			if !rw.hasFold {
+				return nil, &ManifestError{Name: name, Line: rw.line, Reason: "no fold, while other rows have one"}
+			}
+		}
+	}
+	labels := map[string]bool{}
+	for _, rw := range rows {
+		labels[rw.label] = true
+	}
+	c := &Corpus{Source: name}
+	for l := range labels {
+		c.Classes = append(c.Classes, l)
+	}
+	sort.Strings(c.Classes)
+	index := map[string]int{}
+	for i, l := range c.Classes {
+		index[l] = i
+	}
+	maxFold := -1
+	for i, rw := range rows {
+		c.Clips = append(c.Clips, Clip{ID: i, Path: rw.path, Label: index[rw.label], Fold: rw.fold, Start: rw.start, End: rw.end, Group: rw.group})
+		maxFold = max(maxFold, rw.fold)
+	}
+	if withFold > 0 {
+		c.HasFolds, c.Folds = true, maxFold+1
+		if err := c.checkFolds(); err != nil {
+			return nil, fmt.Errorf("datasets: %s: %w", name, err)
+		}
+	}
+	return c, nil
+}
+
+// checkFolds verifies that every fold holds clips and no group spans two
+// folds.
+func (c *Corpus) checkFolds() error {
+	count := make([]int, c.Folds)
+	groupFold := map[string]int{}
+	for _, cl := range c.Clips {
+		if cl.Fold < 0 || cl.Fold >= c.Folds {
+			return corpusErr("clip %s has fold %d outside 0..%d", cl.Path, cl.Fold, c.Folds-1)
+		}
+		count[cl.Fold]++
+		if f, ok := groupFold[cl.Group]; ok && f != cl.Fold {
+			return corpusErr("group %q is in folds %d and %d: clips from one source recording must share a fold (leakage)", cl.Group, f, cl.Fold)
+		}
+		groupFold[cl.Group] = cl.Fold
+	}
+	for f, n := range count {
+		if n == 0 {
+			return corpusErr("fold %d holds no clips (folds must be numbered 0..%d without gaps)", f, c.Folds-1)
+		}
+	}
+	return nil
+}
+
+// ReadFolder reads a corpus laid out as one sub-folder per class holding
+// .wav files (case-insensitive); sub-folders without WAV files are
+// ignored, other files are ignored. Each file is its own group. It has no
+// folds; use [Corpus.AssignFolds].
+func ReadFolder(dir string) (*Corpus, error) {
+	ents, err := os.ReadDir(dir)
+	if err != nil {
+		return nil, fmt.Errorf("datasets: %w", err)
+	}
+	c := &Corpus{Source: dir}
+	for _, e := range ents {
+		if !e.IsDir() {
+			continue
+		}
+		files, err := os.ReadDir(filepath.Join(dir, e.Name()))
+		if err != nil {
+			return nil, fmt.Errorf("datasets: %w", err)
+		}
+		var wavs []string
+		for _, f := range files {
+			if !f.IsDir() && strings.EqualFold(filepath.Ext(f.Name()), ".wav") {
+				wavs = append(wavs, filepath.Join(dir, e.Name(), f.Name()))
+			}
+		}
+		if len(wavs) == 0 {
+			continue
+		}
+		sort.Strings(wavs)
+		label := len(c.Classes)
+		c.Classes = append(c.Classes, e.Name())
+		for _, p := range wavs {
+			c.Clips = append(c.Clips, Clip{ID: len(c.Clips), Path: p, Label: label, Group: p})
+		}
+	}
+	if len(c.Classes) < 2 {
+		return nil, corpusErr("%s: found %d class folders with WAV files, need at least 2", dir, len(c.Classes))
+	}
+	return c, nil
+}
+
+// Open reads a manifest (a file) or a folder corpus (a directory).
+func Open(path, groupColumn string) (*Corpus, error) {
+	fi, err := os.Stat(path)
+	if err != nil {
+		return nil, fmt.Errorf("datasets: %w", err)
+	}
+	if fi.IsDir() {
+		return ReadFolder(path)
+	}
+	return ReadManifest(path, groupColumn)
+}

@@ -1,0 +1,29 @@
+package datasets
+
+import (
+	"errors"
+	"fmt"
+)
+
+// ErrCorpus is wrapped by errors about a corpus that cannot be used as
+// given (missing files, unknown folds, empty classes).
+var ErrCorpus = errors.New("datasets: bad corpus")
+
+// ManifestError reports a problem at a line (1-based) of a manifest file.
+type ManifestError struct {
+	Name   string
+	Line   int
+	Reason string
+}
+
+// Error implements error.
+func (e *ManifestError) Error() string {
+	return fmt.Sprintf("datasets: %s line %d: %s", e.Name, e.Line, e.Reason)
+}
+
+// Unwrap makes errors.Is(err, ErrCorpus) true.
+func (e *ManifestError) Unwrap() error { return ErrCorpus }
+
+func corpusErr(format string, args ...any) error {
+	return fmt.Errorf("%w: "+format, append([]any{ErrCorpus}, args...)...)
+}

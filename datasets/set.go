@@ -1,0 +1,275 @@
+package datasets
+
+import (
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"os"
+
+	"github.com/pipit-audio/pipit/features"
+)
+
+// Options configures [Load].
+type Options struct {
+	FrontEnd features.Config
+	Window   WindowConfig
+	Cache    *Cache // nil: no cache
+	// SkipBad skips clips whose file cannot be decoded, calling Warn with
+	// the error (which names the file); otherwise the first bad clip fails
+	// the load.
+	SkipBad bool
+	Warn    func(error)
+	// KeepAudio keeps each clip's samples, which augmentation needs.
+	KeepAudio bool
+	// Progress, if not nil, is called after each clip is loaded.
+	Progress func(done, total int)
+}
+
+// Window is one model input cut from a clip.
+type Window struct {
+	Clip       int     // Clip.ID
+	Label      int     // class index
+	StartFrame int     // first log-mel frame of the clip's matrix
+	StartSec   float64 // StartFrame·hop/rate
+}
+
+type clipData struct {
+	mat    []float32 // (bands, frames)
+	frames int
+	audio  []float32 // at the front-end rate, padded; nil unless KeepAudio
+}
+
+// Set is the windows of some clips of a corpus, ready to feed a network:
+// [Set.Sample] writes window i as a (bands, frames, 1) input, normalised
+// by Stats and augmented by Aug when both are set.
+type Set struct {
+	Corpus  *Corpus
+	Opts    Options
+	Windows []Window
+	Clips   []int               // clip IDs in this set (bad clips skipped)
+	Skipped []int               // clip IDs skipped as unreadable
+	Stats   *features.BandStats // per-band normalisation; nil: none
+	Aug     *Augment            // nil: no augmentation
+	Seed    uint64              // augmentation seed
+	data    map[int]*clipData
+	ex      *features.Extractor
+	res     map[int]*features.Resampler
+	seg     []float32
+	mat     []float32
+}
+
+// Load reads, resamples, pads and extracts the clips ids of c and cuts
+// them into windows. Each clip's log-mel matrix is taken from opts.Cache
+// when present there.
+func Load(c *Corpus, ids []int, opts Options) (*Set, error) {
+	if err := opts.Window.Check(); err != nil {
+		return nil, err
+	}
+	ex, err := features.NewExtractor(opts.FrontEnd)
+	if err != nil {
+		return nil, err
+	}
+	s := &Set{Corpus: c, Opts: opts, data: map[int]*clipData{}, ex: ex, res: map[int]*features.Resampler{}}
+	for done, id := range ids {
+		cl := c.Clips[id]
+		d, err := s.loadClip(cl)
+		if err != nil {
+			if !opts.SkipBad {
+				return nil, err
+			}
+			if opts.Warn != nil {
+				opts.Warn(err)
+			}
+			s.Skipped = append(s.Skipped, id)
+			continue
+		}
+		s.data[id] = d
+		s.Clips = append(s.Clips, id)
+		hopSec := float64(opts.FrontEnd.HopSamples) / float64(opts.FrontEnd.SampleRateHz)
+		for _, st := range opts.Window.Starts(d.frames) {
+			s.Windows = append(s.Windows, Window{Clip: id, Label: cl.Label, StartFrame: st, StartSec: float64(st) * hopSec})
+		}
+		if opts.Progress != nil {
+			opts.Progress(done+1, len(ids))
+		}
+	}
+	if len(s.Windows) == 0 {
+		return nil, corpusErr("no readable clips among %d", len(ids))
+	}
+	return s, nil
+}
+
+func (s *Set) loadClip(cl Clip) (*clipData, error) {
+	fe := s.Opts.FrontEnd
+	raw, err := os.ReadFile(cl.Path)
+	if err != nil {
+		return nil, fmt.Errorf("datasets: %w", err)
+	}
+	need := s.Opts.Window.Samples(fe)
+	key := cacheKey(raw, cl, s.Opts.Window.Pad, need, fe)
+	mat, _, frames, hit := s.Opts.Cache.get(key)
+	if hit && !s.Opts.KeepAudio {
+		return &clipData{mat: mat, frames: frames}, nil
+	}
+	a, err := features.DecodeWAV(cl.Path, raw)
+	if err != nil {
+		return nil, err
+	}
+	x := a.Samples
+	if a.SampleRateHz != fe.SampleRateHz {
+		r, ok := s.res[a.SampleRateHz]
+		if !ok {
+			if r, err = features.NewResampler(a.SampleRateHz, fe.SampleRateHz); err != nil {
+				return nil, fmt.Errorf("datasets: %s: %w", cl.Path, err)
+			}
+			s.res[a.SampleRateHz] = r
+		}
+		x = r.Resample(nil, x)
+	}
+	lo := int(math.Round(cl.Start * float64(fe.SampleRateHz)))
+	hi := len(x)
+	if cl.End > 0 {
+		hi = min(hi, int(math.Round(cl.End*float64(fe.SampleRateHz))))
+	}
+	if lo >= hi {
+		return nil, corpusErr("%s: span %g..%g s is outside the %.3f s recording", cl.Path, cl.Start, cl.End, a.Seconds())
+	}
+	x = padClip(x[lo:hi], need, s.Opts.Window.Pad)
+	d := &clipData{}
+	if s.Opts.KeepAudio {
+		d.audio = x
+	}
+	if hit {
+		d.mat, d.frames = mat, frames
+		return d, nil
+	}
+	m, err := s.ex.Compute(x)
+	if err != nil {
+		return nil, fmt.Errorf("datasets: %s: %w", cl.Path, err)
+	}
+	d.mat, d.frames = m.Data().([]float32), m.Shape()[1]
+	if err := s.Opts.Cache.put(key, d.mat, fe.Bands, d.frames); err != nil {
+		return nil, err
+	}
+	return d, nil
+}
+
+// Len returns the number of windows.
+func (s *Set) Len() int { return len(s.Windows) }
+
+// InputSize returns Bands·Frames, the values of one sample.
+func (s *Set) InputSize() int { return s.Opts.FrontEnd.Bands * s.Opts.Window.Frames }
+
+// Sample writes window i as a (Bands, Frames, 1) network input into dst
+// and returns its label. With Aug set, the window is re-extracted from
+// augmented audio with an RNG seeded by (Seed, epoch, i), so every epoch
+// sees a different but reproducible variant; then Stats normalise it and
+// Aug's masks apply. It panics if len(dst) != InputSize().
+func (s *Set) Sample(i, epoch int, dst []float32) int {
+	w := s.Windows[i]
+	fe, F, M := s.Opts.FrontEnd, s.Opts.Window.Frames, s.Opts.FrontEnd.Bands
+	if len(dst) != M*F {
+		panic(fmt.Sprintf("datasets: Set.Sample: len(dst) = %d, want %d", len(dst), M*F))
+	}
+	d := s.data[w.Clip]
+	var rng *rand.Rand
+	if s.Aug != nil && d.audio != nil {
+		rng = rand.New(rand.NewPCG(s.Seed^uint64(epoch)*0x9e3779b97f4a7c15, uint64(i)))
+		n := s.Opts.Window.Samples(fe)
+		if cap(s.seg) < n {
+			s.seg = make([]float32, n)
+		}
+		seg := s.seg[:n]
+		s.Aug.audio(seg, d.audio, w.StartFrame*fe.HopSamples, fe.SampleRateHz, rng)
+		m, err := s.ex.Compute(seg)
+		if err != nil {
+			panic("datasets: internal error: " + err.Error())
+		}
+		copy(dst, m.Data().([]float32)[:M*F])
+	} else {
+		T := d.frames
+		for b := 0; b < M; b++ {
+			n := copy(dst[b*F:(b+1)*F], d.mat[b*T+w.StartFrame:min((b+1)*T, b*T+w.StartFrame+F)])
+			clear(dst[b*F+n : (b+1)*F]) // a short final window reads silence-level zeros
+		}
+	}
+	if s.Stats != nil {
+		s.Stats.Apply(dst)
+	}
+	if rng != nil {
+		s.Aug.masks(dst, M, F, rng)
+	}
+	return w.Label
+}
+
+// ComputeStats returns per-band statistics over every frame of every
+// window of the set (unaugmented).
+func (s *Set) ComputeStats() (*features.BandStats, error) {
+	M, F := s.Opts.FrontEnd.Bands, s.Opts.Window.Frames
+	acc := features.NewBandStatsAccumulator(M)
+	buf := make([]float32, M*F)
+	saveStats, saveAug := s.Stats, s.Aug
+	s.Stats, s.Aug = nil, nil
+	defer func() { s.Stats, s.Aug = saveStats, saveAug }()
+	for i := range s.Windows {
+		s.Sample(i, 0, buf)
+		if err := acc.Add(buf, F); err != nil {
+			return nil, err
+		}
+	}
+	return acc.Stats()
+}
+
+// ClipVotes aggregates window probabilities probs (Len(), L) to clips: for
+// each clip of the set (in Clips order) its label, the class of the mean
+// window probability, and the majority vote of window arg-maxes (ties go
+// to the class with the larger mean probability).
+func (s *Set) ClipVotes(probs []float32, classes int) (labels, byMean, byVote []int) {
+	idx := map[int]int{}
+	for k, id := range s.Clips {
+		idx[id] = k
+	}
+	n := len(s.Clips)
+	sums := make([][]float64, n)
+	votes := make([][]int, n)
+	for k := range sums {
+		sums[k] = make([]float64, classes)
+		votes[k] = make([]int, classes)
+	}
+	for i, w := range s.Windows {
+		k := idx[w.Clip]
+		p := probs[i*classes : (i+1)*classes]
+		best := 0
+		for c, v := range p {
+			sums[k][c] += float64(v)
+			if v > p[best] {
+				best = c
+			}
+		}
+		votes[k][best]++
+	}
+	for k, id := range s.Clips {
+		labels = append(labels, s.Corpus.Clips[id].Label)
+		m, v := 0, 0
+		for c := 1; c < classes; c++ {
+			if sums[k][c] > sums[k][m] {
+				m = c
+			}
+			if votes[k][c] > votes[k][v] || (votes[k][c] == votes[k][v] && sums[k][c] > sums[k][v]) {
+				v = c
+			}
+		}
+		byMean = append(byMean, m)
+		byVote = append(byVote, v)
+	}
+	return labels, byMean, byVote
+}
+
+// ClassCounts returns the number of windows per class.
+func (s *Set) ClassCounts() []int {
+	n := make([]int, len(s.Corpus.Classes))
+	for _, w := range s.Windows {
+		n[w.Label]++
+	}
+	return n
+}

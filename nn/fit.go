@@ -1,0 +1,186 @@
+package nn
+
+import (
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"time"
+)
+
+// SampleSource is a set of labelled samples a network can read, such as
+// a datasets.Set.
+type SampleSource interface {
+	// Len returns the number of samples.
+	Len() int
+	// Sample writes sample i's input into dst (len = input size) and
+	// returns its label; epoch lets augmentation differ between epochs.
+	Sample(i, epoch int, dst []float32) int
+}
+
+// FitConfig configures [Fit].
+type FitConfig struct {
+	Epochs   int    // maximum epochs
+	Batch    int    // samples per step
+	Patience int    // stop after this many epochs without a better validation score; 0 = never
+	Seed     uint64 // shuffling
+}
+
+// EpochStats reports one epoch of [Fit].
+type EpochStats struct {
+	Epoch      int     `json:"epoch"` // 1-based
+	Loss       float64 `json:"loss"`
+	Accuracy   float64 `json:"accuracy"`
+	ValLoss    float64 `json:"val_loss"`
+	ValAcc     float64 `json:"val_accuracy"`
+	LR         float64 `json:"lr"`
+	Seconds    float64 `json:"seconds"`
+	SamplesSec float64 `json:"samples_per_second"`
+	Best       bool    `json:"best"` // best validation score so far
+}
+
+// FitProgress is called after every training step with the epoch
+// (1-based), the step within it, the steps per epoch and the running
+// mean loss and accuracy of the epoch.
+type FitProgress func(epoch, step, steps int, loss, acc float64)
+
+// Fit trains tr on train for up to cfg.Epochs epochs, shuffling with a
+// seeded RNG each epoch, evaluates on val after each (skipped when val is
+// nil), and keeps the parameters of the epoch with the best validation
+// accuracy (ties: lower validation loss); at the end those parameters are
+// restored into the network. onEpoch, if not nil, runs after each epoch
+// (e.g. to write the best checkpoint and a log); an error from it stops
+// training and is returned. Training stops early after cfg.Patience
+// epochs without improvement.
+func Fit(tr *Trainer, cfg FitConfig, train, val SampleSource, progress FitProgress, onEpoch func(EpochStats) error) ([]EpochStats, error) {
+	if cfg.Epochs < 1 || cfg.Batch < 1 {
+		return nil, fmt.Errorf("nn: fit needs epochs ≥ 1 and batch ≥ 1, got %d and %d", cfg.Epochs, cfg.Batch)
+	}
+	n := train.Len()
+	if n == 0 {
+		return nil, fmt.Errorf("nn: empty training set")
+	}
+	in := tr.Net.Input.Size()
+	x := make([]float32, cfg.Batch*in)
+	y := make([]int, cfg.Batch)
+	rng := rand.New(rand.NewPCG(cfg.Seed, 0x5eed))
+	order := make([]int, n)
+	for i := range order {
+		order[i] = i
+	}
+	bestData := append([]float32(nil), tr.Net.Params.Data...)
+	bestState := append([]float32(nil), tr.Net.Params.State...)
+	bestAcc, bestLoss := math.Inf(-1), math.Inf(1)
+	var hist []EpochStats
+	since := 0
+	steps := (n + cfg.Batch - 1) / cfg.Batch
+	for ep := 1; ep <= cfg.Epochs; ep++ {
+		t0 := time.Now()
+		rng.Shuffle(n, func(i, j int) { order[i], order[j] = order[j], order[i] })
+		var lossSum float64
+		var correct, seen int
+		var lr float64
+		for s := 0; s < steps; s++ {
+			lo, hi := s*cfg.Batch, min((s+1)*cfg.Batch, n)
+			b := hi - lo
+			for k := 0; k < b; k++ {
+				y[k] = train.Sample(order[lo+k], ep, x[k*in:(k+1)*in])
+			}
+			r, err := tr.Step(x[:b*in], y[:b])
+			if err != nil {
+				return hist, fmt.Errorf("nn: epoch %d step %d: %w", ep, s+1, err)
+			}
+			lossSum += r.Loss * float64(b)
+			correct += r.Correct
+			seen += b
+			lr = r.LR
+			if progress != nil {
+				progress(ep, s+1, steps, lossSum/float64(seen), float64(correct)/float64(seen))
+			}
+		}
+		st := EpochStats{Epoch: ep, Loss: lossSum / float64(seen), Accuracy: float64(correct) / float64(seen), LR: lr}
+		st.Seconds = time.Since(t0).Seconds()
+		st.SamplesSec = float64(seen) / st.Seconds
+		if val != nil {
+			ev, err := Evaluate(tr.Net, tr.Loss, val, cfg.Batch)
+			if err != nil {
+				return hist, err
+			}
+			st.ValLoss, st.ValAcc = ev.Loss, ev.Accuracy
+		} else {
+			st.ValLoss, st.ValAcc = st.Loss, st.Accuracy
+		}
+		if st.ValAcc > bestAcc || (st.ValAcc == bestAcc && st.ValLoss < bestLoss) {
+			bestAcc, bestLoss = st.ValAcc, st.ValLoss
+			copy(bestData, tr.Net.Params.Data)
+			copy(bestState, tr.Net.Params.State)
+			st.Best = true
+			since = 0
+		} else {
+			since++
+		}
+		hist = append(hist, st)
+		if onEpoch != nil {
+			if err := onEpoch(st); err != nil {
+				return hist, err
+			}
+		}
+		if cfg.Patience > 0 && since >= cfg.Patience {
+			break
+		}
+	}
+	copy(tr.Net.Params.Data, bestData)
+	copy(tr.Net.Params.State, bestState)
+	return hist, nil
+}
+
+// Evaluation is the result of [Evaluate].
+type Evaluation struct {
+	Loss     float64
+	Accuracy float64
+	Probs    []float32 // (N, L) softmax probabilities
+	Labels   []int     // (N)
+	Preds    []int     // (N) arg-max classes
+}
+
+// Evaluate runs net in inference mode over every sample of src (epoch 0,
+// so no augmentation varies) and returns loss, accuracy and probabilities.
+func Evaluate(net *Network, loss *SoftmaxCrossEntropy, src SampleSource, batch int) (*Evaluation, error) {
+	n := src.Len()
+	if n == 0 {
+		return nil, fmt.Errorf("nn: empty evaluation set")
+	}
+	if batch < 1 {
+		batch = 32
+	}
+	in, L := net.Input.Size(), loss.Classes
+	x := make([]float32, batch*in)
+	ev := &Evaluation{Probs: make([]float32, n*L), Labels: make([]int, n), Preds: make([]int, n)}
+	var lossSum float64
+	correct := 0
+	for lo := 0; lo < n; lo += batch {
+		hi := min(lo+batch, n)
+		for k := lo; k < hi; k++ {
+			ev.Labels[k] = src.Sample(k, 0, x[(k-lo)*in:(k-lo+1)*in])
+		}
+		logits := net.Forward(x[:(hi-lo)*in], hi-lo, false, nil)
+		l, c, err := loss.Forward(logits, ev.Labels[lo:hi], nil)
+		if err != nil {
+			return nil, err
+		}
+		lossSum += l * float64(hi-lo)
+		correct += c
+		Softmax(ev.Probs[lo*L:hi*L], logits, L)
+	}
+	for i := 0; i < n; i++ {
+		p := ev.Probs[i*L : (i+1)*L]
+		best := 0
+		for c := range p {
+			if p[c] > p[best] {
+				best = c
+			}
+		}
+		ev.Preds[i] = best
+	}
+	ev.Loss, ev.Accuracy = lossSum/float64(n), float64(correct)/float64(n)
+	return ev, nil
+}

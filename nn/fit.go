@@ -39,9 +39,10 @@ type EpochStats struct {
 }
 
 // FitProgress is called after every training step with the epoch
-// (1-based), the step within it, the steps per epoch and the running
-// mean loss and accuracy of the epoch.
-type FitProgress func(epoch, step, steps int, loss, acc float64)
+// (1-based), the step within it, the steps per epoch, the running mean
+// loss and accuracy of the epoch, the samples seen and the seconds since
+// the epoch began.
+type FitProgress func(epoch, step, steps int, loss, acc float64, samples int, seconds float64)
 
 // Fit trains tr on train for up to cfg.Epochs epochs, shuffling with a
 // seeded RNG each epoch, evaluates on val after each (skipped when val is
@@ -94,7 +95,7 @@ func Fit(tr *Trainer, cfg FitConfig, train, val SampleSource, progress FitProgre
 			seen += b
 			lr = r.LR
 			if progress != nil {
-				progress(ep, s+1, steps, lossSum/float64(seen), float64(correct)/float64(seen))
+				progress(ep, s+1, steps, lossSum/float64(seen), float64(correct)/float64(seen), seen, time.Since(t0).Seconds())
 			}
 		}
 		st := EpochStats{Epoch: ep, Loss: lossSum / float64(seen), Accuracy: float64(correct) / float64(seen), LR: lr}

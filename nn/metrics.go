@@ -99,9 +99,9 @@ func (c *Confusion) Metrics() Metrics {
 // Text formats the matrix with class names (rows: true, columns: predicted).
 func (c *Confusion) Text(names []string) string {
 	var b strings.Builder
-	w := 6
-	for _, n := range names {
-		w = max(w, len(n))
+	w := len("true \\ predicted")
+	for t, n := range names {
+		w = max(w, len(fmt.Sprintf("%d %s", t, n)))
 	}
 	fmt.Fprintf(&b, "%*s", w, "true \\ predicted")
 	for k := range names {

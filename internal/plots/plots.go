@@ -5,6 +5,7 @@ package plots
 
 import (
 	"fmt"
+	"image/color"
 	"io"
 	"math"
 
@@ -49,6 +50,10 @@ type HeatMap struct {
 	Title, XLabel, YLabel, BarLabel string
 	Grid                            Grid
 	Width, Height                   vg.Length // whole figure; zero: 8 × 4 inches
+	// XTicks and YTicks, if set, label every column and row by name.
+	XTicks, YTicks []string
+	// Annotate writes each cell's value (as an integer) in the cell.
+	Annotate bool
 }
 
 // WritePNG draws h with a vertical colour bar on the right and writes the
@@ -76,12 +81,47 @@ func (h HeatMap) WritePNG(w io.Writer) error {
 	pal.SetMax(hi)
 	hm := plotter.NewHeatMap(h.Grid, pal.Palette(255))
 	hm.Min, hm.Max = lo, hi
-	hm.Rasterized = true
+	hm.Rasterized = cols*rows > 4096 // vector cells stay crisp for small matrices
 	p := plot.New()
 	p.Title.Text = h.Title
 	p.X.Label.Text = h.XLabel
 	p.Y.Label.Text = h.YLabel
 	p.Add(hm)
+	if h.Annotate {
+		var xy plotter.XYLabels
+		for r := 0; r < rows; r++ {
+			for c := 0; c < cols; c++ {
+				xy.XYs = append(xy.XYs, plotter.XY{X: h.Grid.X(c), Y: h.Grid.Y(r)})
+				xy.Labels = append(xy.Labels, fmt.Sprintf("%.0f", h.Grid.Values[r][c]))
+			}
+		}
+		labels, err := plotter.NewLabels(xy)
+		if err != nil {
+			return fmt.Errorf("plots: %w", err)
+		}
+		for i := range labels.TextStyle {
+			labels.TextStyle[i].Color = color.RGBA{R: 60, G: 160, B: 255, A: 255}
+			labels.TextStyle[i].XAlign = draw.XCenter
+			labels.TextStyle[i].YAlign = draw.YCenter
+		}
+		p.Add(labels)
+	}
+	if len(h.XTicks) > 0 {
+		var t plot.ConstantTicks
+		for i, name := range h.XTicks {
+			t = append(t, plot.Tick{Value: h.Grid.X(i), Label: name})
+		}
+		p.X.Tick.Marker = t
+		p.X.Tick.Label.Rotation = math.Pi / 5
+		p.X.Tick.Label.XAlign = draw.XRight
+	}
+	if len(h.YTicks) > 0 {
+		var t plot.ConstantTicks
+		for i, name := range h.YTicks {
+			t = append(t, plot.Tick{Value: h.Grid.Y(i), Label: name})
+		}
+		p.Y.Tick.Marker = t
+	}
 
 	cb := plot.New()
 	bar := &plotter.ColorBar{ColorMap: pal, Vertical: true}

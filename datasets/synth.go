@@ -84,7 +84,9 @@ func SynthClip(class int, cfg SynthConfig, rng *rand.Rand) []float32 {
 	case "quiet":
 		// background only
 	}
+	colour(src, fs, rng)
 	bg := pinkNoise(n, rng)
+	colour(bg, fs, rng)
 	out := make([]float64, n)
 	ps, pb := power(src), power(bg)
 	gain := 0.0
@@ -108,6 +110,21 @@ func SynthClip(class int, cfg SynthConfig, rng *rand.Rand) []float32 {
 		x[i] = float32(v / peak * level)
 	}
 	return x
+}
+
+// colour applies a random first-order tilt to x in place, the way distance,
+// walls and the microphone change a source's spectrum: a one-pole low-pass
+// with its corner between 1 and 8 kHz mixed with the dry signal, so the
+// level above the corner falls by 0 to about 12 dB.
+func colour(x []float64, fs float64, rng *rand.Rand) {
+	fc := uniform(rng, 1000, 8000)
+	dry := uniform(rng, 0.25, 1)
+	a := math.Exp(-2 * math.Pi * fc / fs)
+	var y float64
+	for i, v := range x {
+		y = (1-a)*v + a*y
+		x[i] = dry*v + (1-dry)*y*2
+	}
 }
 
 func power(x []float64) float64 {
@@ -161,9 +178,16 @@ func resonator(x []float64, fs, f, bw float64) {
 
 func uniform(rng *rand.Rand, a, b float64) float64 { return a + (b-a)*rng.Float64() }
 
+// toneRecipe draws the pitch and harmonic amplitudes shared by the saw and
+// the alarm, so the two differ in time structure, not in spectrum.
+func toneRecipe(rng *rand.Rand) (f0 float64, harm []float64) {
+	f0 = uniform(rng, 700, 3000)
+	harm = []float64{1, uniform(rng, 0.2, 0.7), uniform(rng, 0.1, 0.5), uniform(rng, 0.05, 0.3)}
+	return f0, harm
+}
+
 func synthSaw(x []float64, fs float64, rng *rand.Rand) {
-	f0 := uniform(rng, 1200, 3500)
-	harm := []float64{1, uniform(rng, 0.3, 0.7), uniform(rng, 0.1, 0.4), uniform(rng, 0.05, 0.2)}
+	f0, harm := toneRecipe(rng)
 	// one or two load dips: pitch falls by up to 15 %, level rises with cutting noise
 	type dip struct{ at, width, depth float64 }
 	var dips []dip
@@ -184,13 +208,20 @@ func synthSaw(x []float64, fs float64, rng *rand.Rand) {
 		for h, a := range harm {
 			v += a * math.Sin(float64(h+1)*phase)
 		}
-		x[i] = v + 4*load*rng.NormFloat64()*0.3
+		x[i] = v + 1.2*load*rng.NormFloat64()
 	}
 }
 
+// broadband draws the resonance shared by hammering and rain, so the two
+// differ in time structure (bursts against a steady patter), not spectrum.
+func broadband(rng *rand.Rand) (centre, width float64) {
+	return uniform(rng, 1500, 5000), uniform(rng, 1500, 4000)
+}
+
 func synthHammer(x []float64, fs float64, rng *rand.Rand) {
-	ring := uniform(rng, 400, 2500)
-	decay := uniform(rng, 0.01, 0.04)
+	centre, width := broadband(rng)
+	ring := uniform(rng, 800, 4000)
+	decay := uniform(rng, 0.015, 0.05)
 	period := uniform(rng, 0.15, 0.4)
 	t := uniform(rng, 0, period)
 	dur := float64(len(x)) / fs
@@ -201,10 +232,17 @@ func synthHammer(x []float64, fs float64, rng *rand.Rand) {
 		for i := start; i < len(x) && i < start+int(6*decay*fs); i++ {
 			u := float64(i-start) / fs
 			e := a * math.Exp(-u/decay)
-			burst[i] += e * (rng.NormFloat64() + 2*math.Sin(2*math.Pi*ring*u))
+			burst[i] += e * (rng.NormFloat64() + 0.7*math.Sin(2*math.Pi*ring*u))
 		}
 	}
-	copy(x, burst)
+	hiss := make([]float64, len(burst))
+	for i := range hiss {
+		hiss[i] = burst[i]
+	}
+	resonator(burst, fs, centre, width)
+	for i := range x {
+		x[i] = burst[i] + 0.3*hiss[i]
+	}
 }
 
 func synthDiesel(x []float64, fs float64, rng *rand.Rand) {
@@ -227,7 +265,7 @@ func synthDiesel(x []float64, fs float64, rng *rand.Rand) {
 }
 
 func synthAlarm(x []float64, fs float64, rng *rand.Rand) {
-	f := uniform(rng, 900, 3000)
+	f, harm := toneRecipe(rng)
 	period := uniform(rng, 0.3, 0.6)
 	duty := uniform(rng, 0.4, 0.6)
 	off := uniform(rng, 0, period)
@@ -238,8 +276,11 @@ func synthAlarm(x []float64, fs float64, rng *rand.Rand) {
 		if ph < duty {
 			on = 1
 		}
-		// square-ish tone: fundamental plus odd harmonics
-		x[i] = on * (math.Sin(2*math.Pi*f*t) + 0.3*math.Sin(6*math.Pi*f*t))
+		var v float64
+		for h, a := range harm {
+			v += a * math.Sin(2*math.Pi*f*float64(h+1)*t)
+		}
+		x[i] = on * v
 	}
 }
 
@@ -262,14 +303,14 @@ func synthBirds(x []float64, fs float64, rng *rand.Rand) {
 }
 
 func synthRain(x []float64, fs float64, rng *rand.Rand) {
+	centre, width := broadband(rng)
 	for i := range x {
 		x[i] = rng.NormFloat64()
 	}
-	// a broad hiss: two resonances spread the noise across the upper bands
 	hiss := append([]float64(nil), x...)
-	resonator(x, fs, uniform(rng, 2500, 5000), uniform(rng, 1500, 3000))
+	resonator(x, fs, centre, width)
 	for i := range x {
-		x[i] = 0.6*x[i] + 0.2*hiss[i]
+		x[i] += 0.3 * hiss[i]
 	}
 	// droplets: many short clicks ringing briefly
 	for k := 0; k < 40+rng.IntN(120); k++ {

@@ -1,0 +1,165 @@
+package datasets
+
+import (
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/pipit-audio/pipit/features"
+)
+
+func TestAssignFoldsNeverSplitsAGroup(t *testing.T) {
+	// A corpus built to tempt leakage: 3 classes; class 0 has two long
+	// source recordings cut into 30 spans each, the others many short
+	// single-clip sources. A per-clip split would scatter the spans of each
+	// recording over all folds.
+	var b strings.Builder
+	b.WriteString("path,label,start,end\n")
+	for src := 0; src < 2; src++ {
+		for k := 0; k < 30; k++ {
+			fmt.Fprintf(&b, "long%d.wav,saw,%d,%d\n", src, k, k+1)
+		}
+	}
+	for k := 0; k < 25; k++ {
+		fmt.Fprintf(&b, "alarm%d.wav,alarm,,\nbird%d.wav,bird,0,1\n", k, k)
+	}
+	c, err := ParseManifest("tempt.csv", []byte(b.String()), "/data", "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, seed := range []uint64{1, 2, 3} {
+		if err := c.AssignFolds(5, seed); err != nil {
+			t.Fatal(err)
+		}
+		groupFold := map[string]int{}
+		perFold := make([]int, 5)
+		for _, cl := range c.Clips {
+			if f, ok := groupFold[cl.Group]; ok && f != cl.Fold {
+				t.Fatalf("seed %d: group %s is in folds %d and %d", seed, cl.Group, f, cl.Fold)
+			}
+			groupFold[cl.Group] = cl.Fold
+			perFold[cl.Fold]++
+		}
+		for f, n := range perFold {
+			if n == 0 {
+				t.Errorf("seed %d: fold %d empty", seed, f)
+			}
+		}
+		// the single-clip classes spread evenly: 25 clips → 5 per fold
+		for _, cls := range []string{"alarm", "bird"} {
+			counts := make([]int, 5)
+			for _, cl := range c.Clips {
+				if c.Classes[cl.Label] == cls {
+					counts[cl.Fold]++
+				}
+			}
+			for f, n := range counts {
+				if n != 5 {
+					t.Errorf("seed %d: %s has %d clips in fold %d, want 5", seed, cls, n, f)
+				}
+			}
+		}
+	}
+	// Deterministic: the same seed gives the same folds.
+	c.AssignFolds(5, 9)
+	first := make([]int, len(c.Clips))
+	for i, cl := range c.Clips {
+		first[i] = cl.Fold
+	}
+	c.AssignFolds(5, 9)
+	for i, cl := range c.Clips {
+		if cl.Fold != first[i] {
+			t.Fatal("AssignFolds is not deterministic")
+		}
+	}
+	// A manifest whose own folds split a source recording is rejected.
+	bad := "path,label,fold,start,end\nrec.wav,saw,0,0,1\nrec.wav,saw,1,1,2\nx.wav,bird,1,,\n"
+	if _, err := ParseManifest("leak.csv", []byte(bad), "/", ""); err == nil || !strings.Contains(err.Error(), "leakage") {
+		t.Errorf("manifest splitting a recording across folds: error %v", err)
+	}
+	// ... and a group column ties differently named files together.
+	grouped := "path,label,fold,session\na.wav,saw,0,s1\nb.wav,saw,1,s1\nc.wav,bird,1,s2\n"
+	if _, err := ParseManifest("g.csv", []byte(grouped), "/", "session"); err == nil {
+		t.Error("group column: clips of one session in two folds accepted")
+	}
+}
+
+func TestManifestErrors(t *testing.T) {
+	cases := map[string]string{
+		"no label column": "path,fold\na.wav,0\n",
+		"empty":           "",
+		"bad fold":        "path,label,fold\na.wav,x,zero\n",
+		"partial folds":   "path,label,fold\na.wav,x,0\nb.wav,y,\n",
+		"fold gap":        "path,label,fold\na.wav,x,0\nb.wav,y,2\n",
+		"bad span":        "path,label,start,end\na.wav,x,2,1\n",
+		"no rows":         "path,label\n",
+		"missing group":   "path,label\na.wav,x\n",
+	}
+	for name, m := range cases {
+		group := ""
+		if name == "missing group" {
+			group = "session"
+		}
+		_, err := ParseManifest("m.csv", []byte(m), "/", group)
+		if !errors.Is(err, ErrCorpus) || !strings.Contains(err.Error(), "m.csv") {
+			t.Errorf("%s: error %v, want ErrCorpus naming m.csv", name, err)
+		}
+	}
+	var me *ManifestError
+	_, err := ParseManifest("m.csv", []byte("path,label,fold\na.wav,x,0\nb.wav,y,-3\n"), "/", "")
+	if !errors.As(err, &me) || me.Line != 3 {
+		t.Errorf("error %v should point at line 3", err)
+	}
+	// A row naming a missing file is an error naming it.
+	dir := t.TempDir()
+	p := filepath.Join(dir, "m.csv")
+	os.WriteFile(p, []byte("path,label\nnothere.wav,x\n"), 0o644)
+	if _, err := ReadManifest(p, ""); err == nil || !strings.Contains(err.Error(), "nothere.wav") {
+		t.Errorf("missing file: error %v", err)
+	}
+}
+
+func TestWindowArithmetic(t *testing.T) {
+	// n = 1 + ⌊(T − F)/hop⌋ windows, hop = round(F·(1 − overlap)),
+	// window k at frame k·hop = k·hop·256/16000 s.
+	fe := features.DefaultConfig()
+	for _, c := range []struct {
+		overlap  float64
+		hop      int
+		total, n int
+	}{
+		{0, 61, 311, 5},      // 1 + 250/61 = 5.09
+		{0.25, 46, 311, 6},   // round(45.75) = 46; 1 + 250/46 = 6.4
+		{0.5, 31, 311, 9},    // round(30.5) = 31 (half away from zero); 1 + 250/31 = 9.06
+		{0.75, 15, 311, 17},  // round(15.25) = 15; 1 + 250/15 = 17.7
+		{0.5, 31, 61, 1},     // exactly one window
+		{0.5, 31, 40, 1},     // short clip: padded to one window
+	} {
+		w := WindowConfig{Frames: 61, Overlap: c.overlap, Pad: PadZeros}
+		if h := w.HopFrames(); h != c.hop {
+			t.Errorf("overlap %g: hop %d frames, want %d", c.overlap, h, c.hop)
+		}
+		s := w.Starts(c.total)
+		if len(s) != c.n {
+			t.Errorf("overlap %g, %d frames: %d windows, want %d", c.overlap, c.total, len(s), c.n)
+		}
+		for k, v := range s {
+			if v != k*c.hop {
+				t.Errorf("window %d starts at frame %d, want %d", k, v, k*c.hop)
+			}
+		}
+	}
+	// Samples per window: (61−1)·256 + 512 = 15872.
+	if n := (WindowConfig{Frames: 61, Pad: PadZeros}).Samples(fe); n != 15872 {
+		t.Errorf("Samples = %d, want 15872", n)
+	}
+	if x := padClip([]float32{1, 2, 3}, 7, PadRepeat); fmt.Sprint(x) != "[1 2 3 1 2 3 1]" {
+		t.Errorf("repeat padding %v", x)
+	}
+	if x := padClip([]float32{1, 2}, 4, PadZeros); fmt.Sprint(x) != "[1 2 0 0]" {
+		t.Errorf("zero padding %v", x)
+	}
+}

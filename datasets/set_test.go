@@ -1,0 +1,165 @@
+package datasets
+
+import (
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/pipit-audio/pipit/features"
+)
+
+func smallCorpus(t *testing.T, clips int, seconds float64) (string, *Corpus) {
+	t.Helper()
+	dir := t.TempDir()
+	c, err := Synthesize(dir, SynthConfig{ClipsPerClass: clips, Seconds: seconds, Folds: 2, Seed: 3}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return dir, c
+}
+
+func allIDs(c *Corpus) []int {
+	ids := make([]int, len(c.Clips))
+	for i := range ids {
+		ids[i] = i
+	}
+	return ids
+}
+
+func TestLoadWindowsCacheAndFolders(t *testing.T) {
+	dir, _ := smallCorpus(t, 2, 3)
+	// The manifest reads back as the same corpus.
+	m, err := ReadManifest(filepath.Join(dir, "manifest.csv"), "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(m.Clips) != 16 || len(m.Classes) != 8 || !m.HasFolds || m.Folds != 2 {
+		t.Fatalf("manifest corpus: %d clips, %d classes, folds %v/%d", len(m.Clips), len(m.Classes), m.HasFolds, m.Folds)
+	}
+	// So does the folder form (one sub-folder per class).
+	f, err := ReadFolder(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(f.Clips) != 16 || len(f.Classes) != 8 || f.HasFolds {
+		t.Fatalf("folder corpus: %d clips, %d classes, folds %v", len(f.Clips), len(f.Classes), f.HasFolds)
+	}
+	cache := &Cache{Dir: filepath.Join(t.TempDir(), "cache")}
+	opts := Options{FrontEnd: features.DefaultConfig(), Window: WindowConfig{Frames: 61, Overlap: 0.5, Pad: PadZeros}, Cache: cache}
+	s, err := Load(m, allIDs(m), opts)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// 3 s at 16 kHz: 1 + (48000−512)/256 = 186 frames; windows
+	// 1 + (186−61)/31 = 5 per clip, starting at 0, 31·256/16000 = 0.496 s, ...
+	if s.Len() != 16*5 {
+		t.Fatalf("%d windows, want 80", s.Len())
+	}
+	if w := s.Windows[1]; w.StartFrame != 31 || math.Abs(w.StartSec-0.496) > 1e-12 {
+		t.Errorf("window 1 at frame %d, %.4f s; want 31, 0.496 s", w.StartFrame, w.StartSec)
+	}
+	if cache.Misses != 16 || cache.Hits != 0 {
+		t.Errorf("first load: %d hits %d misses, want 0 and 16", cache.Hits, cache.Misses)
+	}
+	x1 := make([]float32, s.InputSize())
+	s.Sample(7, 0, x1)
+	s2, err := Load(m, allIDs(m), opts)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if cache.Hits != 16 {
+		t.Errorf("second load: %d cache hits, want 16", cache.Hits)
+	}
+	x2 := make([]float32, s.InputSize())
+	s2.Sample(7, 0, x2)
+	for i := range x1 {
+		if x1[i] != x2[i] {
+			t.Fatal("cached features differ from extracted ones")
+		}
+	}
+	// A damaged cache entry is a miss and gets rewritten, never read.
+	entries, _ := filepath.Glob(filepath.Join(cache.Dir, "*", "*.lmel"))
+	os.WriteFile(entries[0], []byte("PIPITLM1garbage"), 0o644)
+	hits := cache.Hits
+	if _, err := Load(m, allIDs(m), opts); err != nil {
+		t.Fatal(err)
+	}
+	if cache.Hits != hits+15 {
+		t.Errorf("after damaging one entry: %d new hits, want 15", cache.Hits-hits)
+	}
+	// Statistics normalise the training windows to mean 0, std 1 per band.
+	st, err := s.ComputeStats()
+	if err != nil {
+		t.Fatal(err)
+	}
+	s.Stats = st
+	var mean float64
+	for i := 0; i < s.Len(); i++ {
+		s.Sample(i, 0, x1)
+		for _, v := range x1[:61] { // band 0
+			mean += float64(v)
+		}
+	}
+	if mean /= float64(61 * s.Len()); math.Abs(mean) > 1e-4 {
+		t.Errorf("band 0 mean after normalisation %g, want 0", mean)
+	}
+}
+
+func TestAugmentationIsSeededAndTrainOnly(t *testing.T) {
+	_, c := smallCorpus(t, 1, 1)
+	opts := Options{FrontEnd: features.DefaultConfig(), Window: WindowConfig{Frames: 61, Pad: PadZeros}, KeepAudio: true}
+	s, err := Load(c, allIDs(c), opts)
+	if err != nil {
+		t.Fatal(err)
+	}
+	plain := make([]float32, s.InputSize())
+	s.Sample(2, 0, plain)
+	s.Aug, s.Seed = DefaultAugment(), 5
+	a, b, e2 := make([]float32, len(plain)), make([]float32, len(plain)), make([]float32, len(plain))
+	s.Sample(2, 1, a)
+	s.Sample(2, 1, b)
+	s.Sample(2, 2, e2)
+	same := func(x, y []float32) bool {
+		for i := range x {
+			if x[i] != y[i] {
+				return false
+			}
+		}
+		return true
+	}
+	if !same(a, b) {
+		t.Error("the same (seed, epoch, window) gave different augmentations")
+	}
+	if same(a, e2) || same(a, plain) {
+		t.Error("augmentation did not change the window between epochs")
+	}
+	// Without KeepAudio (evaluation sets) Aug is ignored.
+	ev, _ := Load(c, allIDs(c), Options{FrontEnd: features.DefaultConfig(), Window: WindowConfig{Frames: 61, Pad: PadZeros}})
+	ev.Aug = DefaultAugment()
+	ev.Sample(2, 1, a)
+	if !same(a, plain) {
+		t.Error("a set without audio augmented its windows")
+	}
+}
+
+func TestCorruptClips(t *testing.T) {
+	_, c := smallCorpus(t, 1, 1)
+	bad := c.Clips[3].Path
+	os.WriteFile(bad, []byte("RIFF\x10\x00\x00\x00WAVEjunk"), 0o644)
+	opts := Options{FrontEnd: features.DefaultConfig(), Window: WindowConfig{Frames: 61, Pad: PadZeros}}
+	if _, err := Load(c, allIDs(c), opts); err == nil || !strings.Contains(err.Error(), filepath.Base(bad)) {
+		t.Fatalf("corrupt WAV without SkipBad: error %v, want one naming %s", err, bad)
+	}
+	var warned []string
+	opts.SkipBad = true
+	opts.Warn = func(err error) { warned = append(warned, err.Error()) }
+	s, err := Load(c, allIDs(c), opts)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(s.Skipped) != 1 || s.Skipped[0] != 3 || len(warned) != 1 || !strings.Contains(warned[0], filepath.Base(bad)) {
+		t.Errorf("skipped %v, warnings %v", s.Skipped, warned)
+	}
+}

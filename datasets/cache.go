@@ -53,7 +53,9 @@ func (c *Cache) get(key string) (m []float32, bands, frames int, ok bool) {
 		return nil, 0, 0, false
 	}
 	data, err := os.ReadFile(c.path(key))
-	m, bands, frames, err = decodeCacheEntry(data)
+	if err == nil {
+		m, bands, frames, err = decodeCacheEntry(data)
+	}
 	if err != nil {
 		c.Misses++
 		return nil, 0, 0, false

@@ -131,12 +131,12 @@ func TestWindowArithmetic(t *testing.T) {
 		hop      int
 		total, n int
 	}{
-		{0, 61, 311, 5},      // 1 + 250/61 = 5.09
-		{0.25, 46, 311, 6},   // round(45.75) = 46; 1 + 250/46 = 6.4
-		{0.5, 31, 311, 9},    // round(30.5) = 31 (half away from zero); 1 + 250/31 = 9.06
-		{0.75, 15, 311, 17},  // round(15.25) = 15; 1 + 250/15 = 17.7
-		{0.5, 31, 61, 1},     // exactly one window
-		{0.5, 31, 40, 1},     // short clip: padded to one window
+		{0, 61, 311, 5},     // 1 + 250/61 = 5.09
+		{0.25, 46, 311, 6},  // round(45.75) = 46; 1 + 250/46 = 6.4
+		{0.5, 31, 311, 9},   // round(30.5) = 31 (half away from zero); 1 + 250/31 = 9.06
+		{0.75, 15, 311, 17}, // round(15.25) = 15; 1 + 250/15 = 17.7
+		{0.5, 31, 61, 1},    // exactly one window
+		{0.5, 31, 40, 1},    // short clip: padded to one window
 	} {
 		w := WindowConfig{Frames: 61, Overlap: c.overlap, Pad: PadZeros}
 		if h := w.HopFrames(); h != c.hop {

@@ -55,7 +55,6 @@ type Set struct {
 	ex      *features.Extractor
 	res     map[int]*features.Resampler
 	seg     []float32
-	mat     []float32
 }
 
 // Load reads, resamples, pads and extracts the clips ids of c and cuts

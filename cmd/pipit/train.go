@@ -360,8 +360,8 @@ func writeTrainLog(csvPath, pngPath string, hist []nn.EpochStats) error {
 		return nil // a line needs two points
 	}
 	fig := plots.LineChart{Title: "training curves", XLabel: "epoch", YLabel: "loss / accuracy", Series: []plots.Series{
-		{Name: "train loss", X: ep, Y: loss}, {Name: "val loss", X: ep, Y: vloss},
-		{Name: "train accuracy", X: ep, Y: acc}, {Name: "val accuracy", X: ep, Y: vacc},
+		{Name: "train loss", X: ep, Y: loss}, {Name: "val loss", X: ep, Y: vloss, Dashed: true},
+		{Name: "train accuracy", X: ep, Y: acc}, {Name: "val accuracy", X: ep, Y: vacc, Dashed: true},
 	}}
 	return plots.SavePNG(pngPath, fig)
 }

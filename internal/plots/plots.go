@@ -10,9 +10,9 @@ import (
 	"math"
 
 	"gonum.org/v1/plot"
-	"gonum.org/v1/plot/palette"
 	"gonum.org/v1/plot/palette/moreland"
 	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/plotutil"
 	"gonum.org/v1/plot/vg"
 	"gonum.org/v1/plot/vg/draw"
 	"gonum.org/v1/plot/vg/vgimg"
@@ -142,8 +142,9 @@ func (h HeatMap) WritePNG(w io.Writer) error {
 
 // Series is one line of a line chart.
 type Series struct {
-	Name string
-	X, Y []float64
+	Name   string
+	X, Y   []float64
+	Dashed bool
 }
 
 // LineChart describes a figure of one or more lines.
@@ -169,8 +170,11 @@ func (c LineChart) WritePNG(w io.Writer) error {
 		if err != nil {
 			return fmt.Errorf("plots: series %q: %w", s.Name, err)
 		}
-		l.Color = palette.Heat(len(c.Series)+1, 1).Colors()[i]
+		l.Color = plotutil.Color(i)
 		l.Width = vg.Points(1.5)
+		if s.Dashed {
+			l.Dashes = []vg.Length{vg.Points(5), vg.Points(3)}
+		}
 		p.Add(l)
 		p.Legend.Add(s.Name, l)
 	}

@@ -1,0 +1,58 @@
+package quant
+
+import (
+	"encoding/json"
+	"testing"
+
+	"github.com/pipit-audio/pipit/nn"
+)
+
+// FuzzParseModel: the quantised-model reader never panics, and the engine
+// runs every model it accepts.
+func FuzzParseModel(f *testing.F) {
+	net, _ := nn.FromSpec("input shape=6x5x1\nconv filters=2 kernel=3 stride=2 pad=same\nrelu\nmaxpool size=2 stride=1\ndepthwise kernel=2\nglobalavgpool\ndense units=3", nn.Shape{}, 1)
+	x := make([]float32, 4*30)
+	for i := range x {
+		x[i] = float32(i%7) - 3
+	}
+	m, _, err := Quantize(net, x, 4, nil, Config{Method: MethodMinMax})
+	net.Close()
+	if err != nil {
+		f.Fatal(err)
+	}
+	good, _ := m.MarshalBinary()
+	f.Add(good)
+	f.Add(good[:30])
+	f.Add([]byte("PIPITQM1\x01\x00\x00\x00\xff\xff\xff\xff"))
+	f.Fuzz(func(t *testing.T, data []byte) {
+		m, err := ParseModel("fuzz.qm", data)
+		if err != nil {
+			return
+		}
+		m.RunAll(make([]int8, m.Input.Size()))
+	})
+}
+
+// FuzzModelJSON fuzzes the validator behind the CRC: any JSON model that
+// Validate accepts must run without panicking.
+func FuzzModelJSON(f *testing.F) {
+	net, _ := nn.FromSpec("input shape=4x4x1\nconv filters=2 kernel=3 pad=same\nrelu6\navgpool size=2\ndense units=2", nn.Shape{}, 1)
+	x := make([]float32, 2*16)
+	for i := range x {
+		x[i] = float32(i%5) - 2
+	}
+	m, _, err := Quantize(net, x, 2, nil, Config{Method: MethodMinMax})
+	net.Close()
+	if err != nil {
+		f.Fatal(err)
+	}
+	j, _ := json.Marshal(m)
+	f.Add(j)
+	f.Fuzz(func(t *testing.T, data []byte) {
+		var m Model
+		if json.Unmarshal(data, &m) != nil || m.Validate() != nil {
+			return
+		}
+		m.RunAll(make([]int8, m.Input.Size()))
+	})
+}

@@ -55,6 +55,37 @@ func TestSynthTrainEval(t *testing.T) {
 	elapsed := time.Since(t0)
 	t.Logf("synth → train → eval: %.1f s; test clip accuracy %.3f", elapsed.Seconds(), rep.TestClipAccuracy)
 
+	// int8: calibrate on the validation fold, compare on the test fold
+	// (issue bar: within 1 percentage point of float, per-channel weights).
+	qmodel := filepath.Join(dir, "model.q")
+	out, err = run(t, "quantize", "--model", model, "--calib", manifest, "--out", qmodel, "--cache", cache, "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var qr quantizeReport
+	if err := json.Unmarshal([]byte(out), &qr); err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("int8 (%s): float accuracy %.3f, int8 %.3f, logit correlation %.5f, SQNR %v", qr.Method, qr.FloatAccuracy, qr.Int8Accuracy, qr.LogitCorr, qr.PerLayerSQNRdB)
+	if qr.FloatAccuracy != rep.TestAccuracy {
+		t.Errorf("quantize's float accuracy %.3f differs from train's %.3f on the same windows", qr.FloatAccuracy, rep.TestAccuracy)
+	}
+	if qr.FloatAccuracy-qr.Int8Accuracy > 0.01 {
+		t.Errorf("int8 accuracy %.3f is more than 1 point below float %.3f", qr.Int8Accuracy, qr.FloatAccuracy)
+	}
+	if qr.FloatBytes != 4*qr.WeightBytes || len(qr.PerLayerSQNRdB) == 0 {
+		t.Errorf("weight bytes %d int8 vs %d float; SQNR %v", qr.WeightBytes, qr.FloatBytes, qr.PerLayerSQNRdB)
+	}
+	out, err = run(t, "eval", "--model", qmodel, "--data", manifest, "--cache", cache, "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var qev evalReport
+	json.Unmarshal([]byte(out), &qev)
+	if qev.Accuracy != qr.Int8Accuracy {
+		t.Errorf("eval of the int8 model: accuracy %.3f, quantize reported %.3f", qev.Accuracy, qr.Int8Accuracy)
+	}
+
 	lin := linearBaseline(t, manifest)
 	t.Logf("linear classifier on mean log-mel: test accuracy %.3f", lin)
 	if lin > rep.TestClipAccuracy-0.1 {

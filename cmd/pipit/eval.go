@@ -3,13 +3,27 @@ package main
 import (
 	"fmt"
 	"io"
+	"os"
 
 	"github.com/spf13/cobra"
 
 	"github.com/pipit-audio/pipit/datasets"
 	"github.com/pipit-audio/pipit/internal/plots"
 	"github.com/pipit-audio/pipit/nn"
+	"github.com/pipit-audio/pipit/quant"
 )
+
+// readHead returns up to n bytes from the start of path.
+func readHead(path string, n int) ([]byte, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	b := make([]byte, n)
+	k, _ := io.ReadFull(f, b)
+	return b[:k], nil
+}
 
 type levelReport struct {
 	nn.Metrics
@@ -33,13 +47,40 @@ type evalReport struct {
 	NumClips   int         `json:"num_clips"`
 }
 
-// loadedModel is a trained float model with what it was trained on.
+// loadedModel is a trained float model, or a quantised one (q set), with
+// what it was trained on.
 type loadedModel struct {
 	net  *nn.Network
+	q    *quant.Model
 	info *datasets.ModelInfo
 }
 
+func (m *loadedModel) close() {
+	if m.net != nil {
+		m.net.Close()
+	}
+}
+
+func (m *loadedModel) predictor() predictor {
+	if m.q != nil {
+		return int8Predictor(m.q)
+	}
+	return floatPredictor(m.net)
+}
+
+// loadModel reads a float model (nn checkpoint) or a quantised model.
 func loadModel(path string) (*loadedModel, error) {
+	if head, err := readHead(path, 8); err == nil && quant.IsModelFile(head) {
+		q, err := quant.ReadModelFile(path)
+		if err != nil {
+			return nil, err
+		}
+		info, err := datasets.ParseModelInfo(path, q.Meta)
+		if err != nil {
+			return nil, err
+		}
+		return &loadedModel{q: q, info: info}, nil
+	}
 	ck, err := nn.ReadCheckpoint(path)
 	if err != nil {
 		return nil, err
@@ -58,7 +99,7 @@ func newEvalCmd() *cobra.Command {
 	var asJSON, skipBad bool
 	cmd := &cobra.Command{
 		Use:   "eval --model MODEL --data MANIFEST|FOLDER",
-		Short: "Evaluate a model: accuracy, per-class precision/recall/F1, confusion matrix",
+		Short: "Evaluate a float or int8 model: accuracy, per-class precision/recall/F1, confusion matrix",
 		Long: `eval runs a model over a fold of a corpus (default: the fold it held out
 for testing) and reports accuracy, balanced accuracy, per-class precision,
 recall and F1 and the confusion matrix, for windows and for whole clips
@@ -82,7 +123,7 @@ confusion matrix is also drawn as a PNG.`,
 		if err != nil {
 			return err
 		}
-		defer m.net.Close()
+		defer m.close()
 		c, err := datasets.Open(data, group)
 		if err != nil {
 			return err
@@ -120,7 +161,7 @@ confusion matrix is also drawn as a PNG.`,
 		}
 		b.done(fmt.Sprintf("%d clips → %d windows", len(set.Clips), set.Len()))
 		set.Stats = m.info.Stats
-		rep, err := evaluateSet(m.net, set, m.info.Classes)
+		rep, err := evaluateSet(m.predictor(), set, m.info.Classes)
 		if err != nil {
 			return err
 		}
@@ -137,14 +178,54 @@ confusion matrix is also drawn as a PNG.`,
 	return cmd
 }
 
-// evaluateSet runs net over set and computes window and clip metrics.
-func evaluateSet(net *nn.Network, set *datasets.Set, classes []string) (*evalReport, error) {
+// predictor returns the logits (n, L) of n inputs.
+type predictor func(x []float32, n int) []float32
+
+func floatPredictor(net *nn.Network) predictor {
+	return func(x []float32, n int) []float32 {
+		out := make([]float32, n*net.Output().Size())
+		net.Predict(out, x, n, 64)
+		return out
+	}
+}
+
+func int8Predictor(m *quant.Model) predictor {
+	return func(x []float32, n int) []float32 {
+		in := m.Input.Size()
+		out := make([]float32, 0, n*m.Classes)
+		for i := 0; i < n; i++ {
+			out = append(out, m.Run(x[i*in:(i+1)*in])...)
+		}
+		return out
+	}
+}
+
+// evaluateSet runs a model over set and computes window and clip metrics.
+func evaluateSet(predict predictor, set *datasets.Set, classes []string) (*evalReport, error) {
 	L := len(classes)
-	ev, err := nn.Evaluate(net, &nn.SoftmaxCrossEntropy{Classes: L}, set, 64)
+	n := set.Len()
+	x := make([]float32, n*set.InputSize())
+	labels := make([]int, n)
+	for i := 0; i < n; i++ {
+		labels[i] = set.Sample(i, 0, x[i*set.InputSize():(i+1)*set.InputSize()])
+	}
+	logits := predict(x, n)
+	loss, _, err := (&nn.SoftmaxCrossEntropy{Classes: L}).Forward(logits, labels, nil)
 	if err != nil {
 		return nil, err
 	}
-	rep := &evalReport{Classes: classes, Loss: ev.Loss, Skipped: len(set.Skipped), NumWindows: set.Len(), NumClips: len(set.Clips)}
+	ev := &nn.Evaluation{Probs: make([]float32, len(logits)), Labels: labels, Preds: make([]int, n)}
+	nn.Softmax(ev.Probs, logits, L)
+	for i := 0; i < n; i++ {
+		best := 0
+		for c := 1; c < L; c++ {
+			if logits[i*L+c] > logits[i*L+best] {
+				best = c
+			}
+		}
+		ev.Preds[i] = best
+	}
+	rep := &evalReport{Classes: classes, Loss: loss, Skipped: len(set.Skipped), NumWindows: set.Len(), NumClips: len(set.Clips)}
 	level := func(labels, preds []int) (levelReport, error) {
 		cm, err := nn.NewConfusion(L, labels, preds)
 		if err != nil {

@@ -30,7 +30,11 @@ func TestQuantizeTracksFloat(t *testing.T) {
 	// keep the logit correlation above 0.99 (common practice: 8-bit PTQ
 	// costs well under a percent of top-1 on CNNs, Krishnamoorthi 2018
 	// Table 3).
-	for _, arch := range nn.ArchNames() {
+	archs := nn.ArchNames()
+	if testing.Short() {
+		archs = []string{"separable"}
+	}
+	for _, arch := range archs {
 		for _, sch := range []Scheme{{Weights: PerChannel}, {Weights: PerTensor}, {Weights: PerChannel, Pow2: true}} {
 			net, x, n := randomNet(t, arch, 2)
 			m, rep, err := Quantize(net, x, n, nil, Config{Method: MethodAuto, Scheme: sch})

@@ -48,12 +48,12 @@ func newExecutor() *executor {
 func (e *executor) start() {
 	e.jobs = make(chan job, maxShards)
 	for i := 0; i < e.workers; i++ {
-		go func() {
-			for j := range e.jobs {
+		go func(jobs <-chan job) { // the channel is passed in: close() resets the field
+			for j := range jobs {
 				j.t.runShard(j.phase, j.shard, j.lo, j.hi)
 				j.wg.Done()
 			}
-		}()
+		}(e.jobs)
 	}
 }
 

@@ -56,3 +56,33 @@ func FuzzModelJSON(f *testing.F) {
 		m.RunAll(make([]int8, m.Input.Size()))
 	})
 }
+
+// FuzzImport: the blob + scheme loader never panics, and the engine runs
+// every model it accepts. Seeds: a real export and damaged copies.
+func FuzzImport(f *testing.F) {
+	net, _ := nn.FromSpec("input shape=6x5x1\nconv filters=2 kernel=3 stride=2 pad=same\nrelu\nmaxpool size=2 stride=1\ndepthwise kernel=2\nglobalavgpool\ndense units=3", nn.Shape{}, 1)
+	x := make([]float32, 4*30)
+	for i := range x {
+		x[i] = float32(i%7) - 3
+	}
+	m, _, err := Quantize(net, x, 4, nil, Config{Method: MethodMinMax})
+	net.Close()
+	if err != nil {
+		f.Fatal(err)
+	}
+	blob, doc, err := Export(m)
+	if err != nil {
+		f.Fatal(err)
+	}
+	js, _ := doc.MarshalScheme()
+	f.Add(blob, js)
+	f.Add(blob[:30], js)
+	f.Add(blob, []byte(`{"format":"pipit-scheme","version":1}`))
+	f.Fuzz(func(t *testing.T, blob, scheme []byte) {
+		m, err := Import(blob, scheme)
+		if err != nil {
+			return
+		}
+		m.RunAll(make([]int8, m.Input.Size()))
+	})
+}

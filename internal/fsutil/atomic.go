@@ -35,6 +35,9 @@ func WriteWith(path string, write func(w io.Writer) error) error {
 		err = bw.Flush()
 	}
 	if err == nil {
+		err = f.Chmod(0o644) // CreateTemp makes 0600; outputs are ordinary files
+	}
+	if err == nil {
 		err = f.Sync()
 	}
 	if cerr := f.Close(); err == nil {

@@ -271,18 +271,7 @@ func Export(m *Model) (blob []byte, scheme *SchemeDoc, err error) {
 	return blob, doc, nil
 }
 
-func layerMACs(l *Layer) int64 {
-	g := l.Geom
-	switch l.Op {
-	case OpConv:
-		return int64(g.OH*g.OW) * int64(l.OutShape.C) * int64(g.KH*g.KW*g.C)
-	case OpDepthwise:
-		return int64(g.OH*g.OW) * int64(g.C) * int64(g.KH*g.KW)
-	case OpDense:
-		return int64(len(l.Weights))
-	}
-	return 0
-}
+func layerMACs(l *Layer) int64 { return macCount(l.Op, l.Geom, l.OutShape.C, len(l.Weights)) }
 
 // MarshalScheme returns the scheme as indented JSON.
 func (d *SchemeDoc) MarshalScheme() ([]byte, error) {

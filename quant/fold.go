@@ -38,15 +38,18 @@ type FloatLayer struct {
 }
 
 // MACs returns multiply-accumulates per inference, as nn.Cost counts them.
-func (l *FloatLayer) MACs() int64 {
-	g := l.Geom
-	switch l.Op {
+func (l *FloatLayer) MACs() int64 { return macCount(l.Op, l.Geom, l.Out.C, len(l.Weight)) }
+
+// macCount counts the multiply-accumulates of one operation: kernel taps
+// times output values (MobileNets §3.1); a dense layer's are its weights.
+func macCount(op string, g kernels.ConvGeom, outC, weights int) int64 {
+	switch op {
 	case OpConv:
-		return int64(g.OH*g.OW) * int64(l.Out.C) * int64(g.KH*g.KW*g.C)
+		return int64(g.OH*g.OW) * int64(outC) * int64(g.KH*g.KW*g.C)
 	case OpDepthwise:
 		return int64(g.OH*g.OW) * int64(g.C) * int64(g.KH*g.KW)
 	case OpDense:
-		return int64(len(l.Weight))
+		return int64(weights)
 	}
 	return 0
 }

@@ -7,19 +7,26 @@ import (
 	"github.com/pipit-audio/pipit/nn"
 )
 
-// FuzzParseModel: the quantised-model reader never panics, and the engine
-// runs every model it accepts.
-func FuzzParseModel(f *testing.F) {
+// fuzzSeedModel quantises a small network touching every op kind, the
+// seed of the model-file fuzz targets.
+func fuzzSeedModel(f *testing.F) *Model {
 	net, _ := nn.FromSpec("input shape=6x5x1\nconv filters=2 kernel=3 stride=2 pad=same\nrelu\nmaxpool size=2 stride=1\ndepthwise kernel=2\nglobalavgpool\ndense units=3", nn.Shape{}, 1)
+	defer net.Close()
 	x := make([]float32, 4*30)
 	for i := range x {
 		x[i] = float32(i%7) - 3
 	}
 	m, _, err := Quantize(net, x, 4, nil, Config{Method: MethodMinMax})
-	net.Close()
 	if err != nil {
 		f.Fatal(err)
 	}
+	return m
+}
+
+// FuzzParseModel: the quantised-model reader never panics, and the engine
+// runs every model it accepts.
+func FuzzParseModel(f *testing.F) {
+	m := fuzzSeedModel(f)
 	good, _ := m.MarshalBinary()
 	f.Add(good)
 	f.Add(good[:30])
@@ -60,16 +67,7 @@ func FuzzModelJSON(f *testing.F) {
 // FuzzImport: the blob + scheme loader never panics, and the engine runs
 // every model it accepts. Seeds: a real export and damaged copies.
 func FuzzImport(f *testing.F) {
-	net, _ := nn.FromSpec("input shape=6x5x1\nconv filters=2 kernel=3 stride=2 pad=same\nrelu\nmaxpool size=2 stride=1\ndepthwise kernel=2\nglobalavgpool\ndense units=3", nn.Shape{}, 1)
-	x := make([]float32, 4*30)
-	for i := range x {
-		x[i] = float32(i%7) - 3
-	}
-	m, _, err := Quantize(net, x, 4, nil, Config{Method: MethodMinMax})
-	net.Close()
-	if err != nil {
-		f.Fatal(err)
-	}
+	m := fuzzSeedModel(f)
 	blob, doc, err := Export(m)
 	if err != nil {
 		f.Fatal(err)

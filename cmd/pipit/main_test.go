@@ -98,8 +98,8 @@ func TestDemoRuns(t *testing.T) {
 	if testing.Short() {
 		t.Skip("runs the whole pipeline; skipped with -short")
 	}
-	dir := t.TempDir()
-	out, err := run(t, "demo", "--out", dir, "--epochs", "3", "--json")
+	t.Chdir(t.TempDir()) // a relative --out, as the README's command uses
+	out, err := run(t, "demo", "--out", "demo-out", "--epochs", "3", "--json")
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -67,6 +67,10 @@ int main(int argc, char **argv) {
 // AddressSanitizer and UndefinedBehaviorSanitizer. It returns the
 // executable's path.
 func Build(dir, header, prefix, cc string, sanitize bool) (string, error) {
+	dir, err := filepath.Abs(dir) // the compiler runs in dir
+	if err != nil {
+		return "", fmt.Errorf("cref: %w", err)
+	}
 	files := map[string][]byte{"pipit_rt.h": RuntimeHeader, "pipit_rt.c": RuntimeSource, "model.h": []byte(header),
 		"driver.c": []byte(fmt.Sprintf(driver, prefix, upper(prefix)))}
 	for name, data := range files {

@@ -46,6 +46,7 @@ func (p *Params) Entry(name string) (ParamEntry, bool) {
 // Count returns the number of trainable parameters.
 func (p *Params) Count() int { return len(p.Data) }
 
+// String summarises the buffer sizes.
 func (p *Params) String() string {
 	return fmt.Sprintf("nn.Params{%d trainable in %d tensors, %d state}", len(p.Data), len(p.Entries), len(p.State))
 }

@@ -163,3 +163,32 @@ func TestCorruptClips(t *testing.T) {
 		t.Errorf("skipped %v, warnings %v", s.Skipped, warned)
 	}
 }
+
+func TestSegments(t *testing.T) {
+	classes := []string{"a", "b"}
+	// windows at 0, 0.5, 1, 1.5 s of 1 s each: a a b a
+	probs := []float32{0.9, 0.1, 0.7, 0.3, 0.2, 0.8, 0.6, 0.4}
+	segs, err := Segments(probs, classes, []float64{0, 0.5, 1, 1.5}, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []Segment{{0, 1, 0, "a", 0.8, 2}, {1, 1.5, 1, "b", 0.8, 1}, {1.5, 2.5, 0, "a", 0.6, 1}}
+	if len(segs) != len(want) {
+		t.Fatalf("segments %+v", segs)
+	}
+	for i := range want {
+		g, w := segs[i], want[i]
+		if g.StartSec != w.StartSec || g.EndSec != w.EndSec || g.Class != w.Class || g.Windows != w.Windows || math.Abs(g.MeanProb-w.MeanProb) > 1e-6 {
+			t.Errorf("segment %d = %+v, want %+v", i, g, w)
+		}
+	}
+	// A 10 s recording at 50 % overlap of 61-frame windows: 1 + (623−61)/31 = 19 windows.
+	a := &features.Audio{SampleRateHz: 16000, Samples: make([]float32, 160000)}
+	rec, err := CutRecording(a, features.DefaultConfig(), WindowConfig{Frames: 61, Overlap: 0.5, Pad: PadZeros}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rec.N != 19 || math.Abs(rec.StartSec[1]-0.496) > 1e-12 || math.Abs(rec.WindowSec-0.992) > 1e-12 {
+		t.Errorf("recording: %d windows, second at %g s, %g s each", rec.N, rec.StartSec[1], rec.WindowSec)
+	}
+}

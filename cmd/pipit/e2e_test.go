@@ -86,6 +86,52 @@ func TestSynthTrainEval(t *testing.T) {
 		t.Errorf("eval of the int8 model: accuracy %.3f, quantize reported %.3f", qev.Accuracy, qr.Int8Accuracy)
 	}
 
+	// A long recording: three test-fold clips of every class, end to end.
+	// Each window's most likely class must match the clip under its centre
+	// for at least 80 % of the windows (those straddling a boundary see two).
+	c, _ := datasets.ReadManifest(manifest, "")
+	var long []float32
+	var truth []string
+	perClass := map[int]int{}
+	for _, cl := range c.Clips {
+		if cl.Fold != 0 || perClass[cl.Label] >= 3 {
+			continue
+		}
+		perClass[cl.Label]++
+		a, err := features.ReadWAVFile(cl.Path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		long = append(long, a.Samples...)
+		truth = append(truth, c.Classes[cl.Label])
+	}
+	longPath := filepath.Join(dir, "long.wav")
+	if err := features.WriteWAVFile(longPath, long, 16000); err != nil {
+		t.Fatal(err)
+	}
+	out, err = run(t, "timeline", "--model", qmodel, longPath, "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var tl timelineReport
+	if err := json.Unmarshal([]byte(out), &tl); err != nil {
+		t.Fatal(err)
+	}
+	agree, total := 0, 0
+	for _, sg := range tl.Segments {
+		for k := 0; k < sg.Windows; k++ {
+			centre := sg.StartSec + float64(k)*tl.WindowSec/2 + tl.WindowSec/2 // 50 % overlap: windows every half window
+			if i := int(centre); i < len(truth) && truth[i] == sg.Label {
+				agree++
+			}
+			total++
+		}
+	}
+	t.Logf("timeline: %d windows over %.0f s, %d segments, %.3f of windows agree with the clip under their centre", total, tl.Seconds, len(tl.Segments), float64(agree)/float64(total))
+	if total != tl.Windows || float64(agree) < 0.8*float64(total) {
+		t.Errorf("timeline: %d of %d windows agree (report says %d windows)", agree, total, tl.Windows)
+	}
+
 	lin := linearBaseline(t, manifest)
 	t.Logf("linear classifier on mean log-mel: test accuracy %.3f", lin)
 	if lin > rep.TestClipAccuracy-0.1 {

@@ -3,6 +3,7 @@ package quant_test
 import (
 	"fmt"
 	"math/rand/v2"
+	"strings"
 
 	"github.com/pipit-audio/pipit/nn"
 	"github.com/pipit-audio/pipit/quant"
@@ -37,4 +38,26 @@ func ExampleQuantizeMultiplier() {
 	fmt.Println(m0, shift, quant.MultiplyByQuantizedMultiplier(12345, m0, shift))
 	// Output:
 	// 1374389535 6 123
+}
+
+// Export a quantised network for a device: blob, scheme and C header.
+func ExampleExport() {
+	net, _ := nn.FromSpec("input shape=8x8x1\nconv filters=4 kernel=3 pad=same\nrelu\nglobalavgpool\ndense units=2", nn.Shape{}, 1)
+	defer net.Close()
+	x := make([]float32, 4*64)
+	for i := range x {
+		x[i] = float32(i%9) - 4
+	}
+	m, _, err := quant.Quantize(net, x, 4, nil, quant.Config{Method: quant.MethodMinMax})
+	if err != nil {
+		panic(err)
+	}
+	blob, scheme, err := quant.Export(m)
+	if err != nil {
+		panic(err)
+	}
+	header := quant.CHeader(blob, scheme, "tiny")
+	fmt.Println("layers:", len(scheme.Layers), "weight bytes:", scheme.Totals.WeightBytes, "RAM pool:", scheme.Memory.PoolBytes, "header mentions pool:", strings.Contains(header, "TINY_POOL_BYTES 320"))
+	// Output:
+	// layers: 3 weight bytes: 44 RAM pool: 320 header mentions pool: true
 }

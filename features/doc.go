@@ -1,7 +1,11 @@
 // Package features turns recordings into the log-mel frames pipit's
 // networks read: WAV decoding, mono mix, band-limited resampling, framing,
 // windows, real FFT, mel filterbanks, log compression, a batch and a
-// streaming extractor, and per-band normalisation statistics.
+// streaming extractor, per-band normalisation statistics, and the IEC
+// 61672-1 A and C frequency weightings with an indicative A-weighted
+// digital level (not a sound pressure level: pipit is not a sound level
+// meter; where levels bear on noise exposure, a certified instrument and
+// local regulations and licensed practice decide).
 //
 // features computes log-mel features for training and for reproducing them
 // on a device; it is not a general DSP library, and it knows nothing of

@@ -38,6 +38,11 @@ func TestMelspecOnEveryFixture(t *testing.T) {
 			if err := json.Unmarshal([]byte(out), &rep); err != nil {
 				t.Fatalf("--json output %q: %v", out, err)
 			}
+			// every fixture is a 0.5-amplitude sine (mixes of several for the
+			// multichannel ones): at most 20·lg 0.5 − 3.01 ≈ −9.0 dB FS A-weighted
+			if rep.LevelA > -8.9 || rep.LevelA < -40 {
+				t.Errorf("A-weighted level %.2f dB FS implausible for a 0.5-amplitude sine", rep.LevelA)
+			}
 			if rep.Bands != 40 || rep.Settings.SampleRateHz != 16000 || rep.Settings.FMaxHz != 8000 {
 				t.Errorf("report %+v: want 40 bands at 16 kHz to 8 kHz", rep)
 			}

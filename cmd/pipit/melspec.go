@@ -20,6 +20,7 @@ type melspecReport struct {
 	InputRateHz int             `json:"input_rate_hz"`
 	Channels    int             `json:"input_channels"`
 	Seconds     float64         `json:"seconds"`
+	LevelA      float64         `json:"level_a_dbfs"` // indicative A-weighted level of the input, dB re full scale; not a sound pressure level
 	Settings    features.Config `json:"settings"`
 	Frames      int             `json:"frames"`
 	Bands       int             `json:"bands"`
@@ -57,8 +58,8 @@ per band, no header) and PREFIX.png (time on x, bands on y, colour bar).`,
 		if asJSON {
 			return printJSON(cmd.OutOrStdout(), rep)
 		}
-		fmt.Fprintf(cmd.OutOrStdout(), "%s: %.2f s at %d Hz, %d ch → %d frames × %d bands\nwrote %s\nwrote %s\n",
-			rep.Input, rep.Seconds, rep.InputRateHz, rep.Channels, rep.Frames, rep.Bands, rep.CSV, rep.PNG)
+		fmt.Fprintf(cmd.OutOrStdout(), "%s: %.2f s at %d Hz, %d ch → %d frames × %d bands\n", rep.Input, rep.Seconds, rep.InputRateHz, rep.Channels, rep.Frames, rep.Bands)
+		fmt.Fprintf(cmd.OutOrStdout(), "A-weighted level %.1f dB FS (indicative digital level, not a sound pressure level)\nwrote %s\nwrote %s\n", rep.LevelA, rep.CSV, rep.PNG)
 		return nil
 	}
 	return cmd
@@ -77,8 +78,13 @@ func runMelspec(in, prefix string, cfg features.Config) (*melspecReport, error) 
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", in, err)
 	}
+	levelA, err := features.ALevelDBFS(a.Samples, a.SampleRateHz)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", in, err)
+	}
 	rep := &melspecReport{
-		Input: in, InputRateHz: a.SampleRateHz, Channels: a.Channels, Seconds: a.Seconds(),
+		LevelA: levelA,
+		Input:  in, InputRateHz: a.SampleRateHz, Channels: a.Channels, Seconds: a.Seconds(),
 		Settings: cfg, Bands: m.Shape()[0], Frames: m.Shape()[1],
 		CSV: prefix + ".csv", PNG: prefix + ".png",
 	}

@@ -1,0 +1,51 @@
+package features
+
+import (
+	"math"
+	"testing"
+)
+
+func TestWeightingsAgainstIEC61672(t *testing.T) {
+	// Nominal A and C weightings of IEC 61672-1:2013 Table 3 (check-values.md
+	// §7.2, [S]: two independent transcriptions agree), which the Annex E
+	// expressions reproduce to the printed 0.1 dB when evaluated at the
+	// exact base-10 frequencies f = 1000·10^(n/10), n = −20…13
+	// (check-values.md §7.2 "Reproduction").
+	A := []float64{-70.4, -63.4, -56.7, -50.5, -44.7, -39.4, -34.6, -30.2, -26.2, -22.5, -19.1, -16.1, -13.4, -10.9, -8.6, -6.6, -4.8, -3.2, -1.9, -0.8, 0, 0.6, 1.0, 1.2, 1.3, 1.2, 1.0, 0.5, -0.1, -1.1, -2.5, -4.3, -6.6, -9.3}
+	C := []float64{-14.3, -11.2, -8.5, -6.2, -4.4, -3.0, -2.0, -1.3, -0.8, -0.5, -0.3, -0.2, -0.1, 0, 0, 0, 0, 0, 0, 0, 0, 0, -0.1, -0.2, -0.3, -0.5, -0.8, -1.3, -2.0, -3.0, -4.4, -6.2, -8.5, -11.2}
+	for i := range A {
+		f := 1000 * math.Pow(10, float64(i-20)/10)
+		if got := math.Round(AWeightingDB(f)*10) / 10; math.Abs(got-A[i]) > 1e-9 {
+			t.Errorf("A(%.1f Hz) = %.3f dB, table %.1f", f, AWeightingDB(f), A[i])
+		}
+		if got := math.Round(CWeightingDB(f)*10) / 10; math.Abs(got-C[i]) > 1e-9 {
+			t.Errorf("C(%.1f Hz) = %.3f dB, table %.1f", f, CWeightingDB(f), C[i])
+		}
+	}
+	// At 1 kHz both are 0 within the rounding of the published constants:
+	// A(1000) = +0.000142 dB, C(1000) = +0.000096 dB (check-values.md §7.1 [D]).
+	if a, c := AWeightingDB(1000), CWeightingDB(1000); math.Abs(a) > 1e-3 || math.Abs(c) > 1e-3 {
+		t.Errorf("A(1 kHz) = %.6f, C(1 kHz) = %.6f dB, want 0 within 1e-3", a, c)
+	}
+	// Derived values at exact frequencies (check-values.md §7.2 table [D]).
+	for _, c := range []struct{ f, a, c float64 }{{31.6228, -39.444, -3.010}, {100, -19.145, -0.300}, {501.1872, -3.233, 0.033}, {2511.886, 1.271, -0.300}, {10000, -2.492, -4.405}, {15848.93, -6.602, -8.531}} {
+		if math.Abs(AWeightingDB(c.f)-c.a) > 0.001 || math.Abs(CWeightingDB(c.f)-c.c) > 0.001 {
+			t.Errorf("%.1f Hz: A %.4f C %.4f, want %.3f and %.3f", c.f, AWeightingDB(c.f), CWeightingDB(c.f), c.a, c.c)
+		}
+	}
+}
+
+func TestALevelDBFS(t *testing.T) {
+	// A full-scale 1 kHz sine: mean square ½ → 10·lg ½ = −3.0103 dB FS, A(1 kHz) ≈ 0.
+	// At 100 Hz the same sine reads −3.0103 + A(100 Hz) = −3.0103 − 19.145 dB.
+	for _, c := range []struct{ f, want float64 }{{1000, -3.0103}, {100, -3.0103 - 19.145}} {
+		x := make([]float32, 16000)
+		for n := range x {
+			x[n] = float32(math.Sin(2 * math.Pi * c.f * float64(n) / 16000))
+		}
+		got, err := ALevelDBFS(x, 16000)
+		if err != nil || math.Abs(got-c.want) > 0.01 {
+			t.Errorf("%g Hz sine: %.4f dB FS (%v), want %.4f", c.f, got, err, c.want)
+		}
+	}
+}

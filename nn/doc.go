@@ -44,6 +44,7 @@
 //	globalavgpool
 //	dropout       rate=R
 //	flatten
+//	fakequant     [decay=0.99]                            (quantisation-aware training)
 //
 // P is "valid" (default), "same" (output ceil(in/stride), the odd padding
 // row/column at the bottom/right, as TensorFlow does) or four integers

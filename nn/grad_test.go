@@ -160,3 +160,33 @@ func TestSoftmaxCrossEntropyGradient(t *testing.T) {
 		}
 	}
 }
+
+func TestFakeQuant(t *testing.T) {
+	// With a scale of 0.5 and zero point 0 over int8: 0.3 → round(0.6) = 1 →
+	// 0.5; −0.74 → −1 → −0.5; 100 → clamped to 127 → 63.5, gradient 0 there.
+	l := NewFakeQuant(0.5)
+	l.QParams = func(lo, hi float64) (float64, int32) { return 0.5, 0 }
+	net, err := New(Shape{1, 1, 3}, []Layer{l}, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer net.Close()
+	out := net.Forward([]float32{0.3, -0.74, 100}, 1, true, nil)
+	for i, want := range []float32{0.5, -0.5, 63.5} {
+		if out[i] != want {
+			t.Errorf("out[%d] = %g, want %g", i, out[i], want)
+		}
+	}
+	if l.Lo != float64(float32(-0.74)) || l.Hi != 100 {
+		t.Errorf("first range [%g, %g], want the batch's", l.Lo, l.Hi)
+	}
+	net.Forward([]float32{0, 0, 0}, 1, true, nil) // EMA: 0.5·old + 0.5·0
+	if math.Abs(l.Lo+0.37) > 1e-6 || math.Abs(l.Hi-50) > 1e-6 { // float32 inputs: within 1e-6
+		t.Errorf("EMA range [%g, %g], want [-0.37, 50]", l.Lo, l.Hi)
+	}
+	dx := make([]float32, 3)
+	l.backward(&net.pass, dx, []float32{1, 1, 1}, []float32{0.3, -0.74, 100}, nil, 1)
+	if dx[0] != 1 || dx[1] != 1 || dx[2] != 0 {
+		t.Errorf("straight-through gradient %v, want [1 1 0]", dx)
+	}
+}

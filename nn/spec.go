@@ -74,6 +74,8 @@ func ParseSpec(text string) (layers []Layer, in Shape, ok bool, err error) {
 			l = NewDropout(a.float("rate", 0))
 		case "flatten":
 			l = NewFlatten()
+		case "fakequant":
+			l = NewFakeQuant(a.float("decay", 0.99))
 		default:
 			return nil, Shape{}, false, bad("unknown layer %q", fields[0])
 		}

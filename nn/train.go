@@ -15,9 +15,13 @@ type Trainer struct {
 	Loss  *SoftmaxCrossEntropy
 	Opt   *Optimizer
 	Sched Schedule
-	pcg   *rand.PCG
-	rng   *rand.Rand
-	dz    []float32 // (N, L) logit gradients
+	// BeforeStep and AfterStep, if set, run around every step (after the
+	// forward/backward/update, before the next); quantisation-aware
+	// training uses them to swap fake-quantised weights in and out.
+	BeforeStep, AfterStep func()
+	pcg                   *rand.PCG
+	rng                   *rand.Rand
+	dz                    []float32 // (N, L) logit gradients
 }
 
 // StepResult reports one training step.
@@ -62,6 +66,12 @@ func (t *Trainer) Step(x []float32, labels []int) (StepResult, error) {
 		t.dz = make([]float32, n*L)
 	}
 	dz := t.dz[:n*L]
+	if t.BeforeStep != nil {
+		t.BeforeStep()
+	}
+	if t.AfterStep != nil {
+		defer t.AfterStep()
+	}
 	logits := t.Net.Forward(x, n, true, t.rng)
 	loss, correct, err := t.Loss.Forward(logits, labels, dz)
 	if err != nil {

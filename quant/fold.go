@@ -84,7 +84,7 @@ func Fold(net *nn.Network) ([]FloatLayer, error) {
 			fl = FloatLayer{Op: op, Geom: v.Geometry()}
 		case *nn.GlobalAvgPool:
 			fl = FloatLayer{Op: OpGlobalAvgPool}
-		case *nn.Dropout, *nn.Flatten:
+		case *nn.Dropout, *nn.Flatten, *nn.FakeQuant:
 			in = net.Shapes[i]
 			if len(out) > 0 {
 				out[len(out)-1].NetIndex, out[len(out)-1].Out = i, in

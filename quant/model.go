@@ -105,11 +105,7 @@ func quantizeLayers(fl []FloatLayer, act []QParams, s Scheme) ([]Layer, error) {
 		}
 		l.WeightScale = make([]float64, oc)
 		for c, m := range maxAbs {
-			sc := math.Max(m, 1e-12) / 127
-			if s.Pow2 {
-				sc = math.Pow(2, math.Ceil(math.Log2(sc)))
-			}
-			l.WeightScale[c] = sc
+			l.WeightScale[c] = weightScale(m, s.Pow2)
 		}
 		l.Weights = make([]int8, len(f.Weight))
 		for i, w := range f.Weight {

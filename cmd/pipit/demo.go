@@ -126,7 +126,7 @@ func runDemo(out, cc string, epochs int, stderr io.Writer) (*demoReport, error) 
 	fmt.Fprintf(stderr, "%d MACs, %d parameters, %.0f MAC/s: %s\n", cost.MACs, cost.Params, v.MACsPerSecond, map[bool]string{true: "fits", false: "does not fit"}[v.Fits])
 
 	step(stderr, 4, "calibrate to int8 (validation fold) and compare float and int8 on the test fold")
-	qr, err := runQuantize(rep.Model, o.data, "", cache, rep.QModel, -2, quant.Config{Method: quant.MethodAuto, Scheme: quant.Scheme{Weights: quant.PerChannel}}, stderr)
+	qr, err := runQuantize(rep.Model, o.data, "", cache, rep.QModel, -2, quant.Config{Method: quant.MethodAuto, Scheme: quant.Scheme{Weights: quant.PerChannel}}, qatOptions{}, stderr)
 	if err != nil {
 		return nil, err
 	}

@@ -8,6 +8,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/pipit-audio/pipit/datasets"
+	"github.com/pipit-audio/pipit/nn"
 	"github.com/pipit-audio/pipit/quant"
 )
 
@@ -24,6 +25,8 @@ type quantizeReport struct {
 	Int8Accuracy   float64             `json:"int8_accuracy"`
 	FloatClipAcc   float64             `json:"float_clip_accuracy"`
 	Int8ClipAcc    float64             `json:"int8_clip_accuracy"`
+	PTQAccuracy    float64             `json:"ptq_int8_accuracy"` // before QAT (equals int8_accuracy without it)
+	QATEpochs      int                 `json:"qat_epochs"`
 	PerLayerSQNRdB []float64           `json:"per_layer_sqnr_db"`
 	Layers         []quant.LayerReport `json:"layers"`
 	Tried          map[string]float64  `json:"tried,omitempty"`
@@ -36,7 +39,8 @@ type quantizeReport struct {
 
 func newQuantizeCmd() *cobra.Command {
 	var model, calib, method, scheme, out, group, cacheDir string
-	var calibFold int
+	var calibFold, qatEpochs int
+	var qatLR float64
 	var asJSON bool
 	cmd := &cobra.Command{
 		Use:   "quantize --model MODEL --calib MANIFEST|FOLDER --out QMODEL",
@@ -60,6 +64,8 @@ pipit eval.`,
 	f.StringVar(&out, "out", "", "quantised model to write (required)")
 	f.StringVar(&group, "group", "", "manifest column naming the source recording")
 	f.StringVar(&cacheDir, "cache", defaultCacheDir(), "feature cache directory (empty: no cache)")
+	f.IntVar(&qatEpochs, "qat-epochs", 0, "quantisation-aware fine-tuning epochs on the training folds after calibration (0: post-training quantisation only)")
+	f.Float64Var(&qatLR, "qat-lr", 2e-4, "learning rate of quantisation-aware fine-tuning")
 	f.BoolVar(&asJSON, "json", false, "print the report as JSON")
 	for _, r := range []string{"model", "calib", "out"} {
 		cmd.MarkFlagRequired(r)
@@ -69,7 +75,7 @@ pipit eval.`,
 		if scheme == "pow2" {
 			sch = quant.Scheme{Weights: quant.PerChannel, Pow2: true}
 		}
-		rep, err := runQuantize(model, calib, group, cacheDir, out, calibFold, quant.Config{Method: method, Scheme: sch}, cmd.ErrOrStderr())
+		rep, err := runQuantize(model, calib, group, cacheDir, out, calibFold, quant.Config{Method: method, Scheme: sch}, qatOptions{epochs: qatEpochs, lr: qatLR}, cmd.ErrOrStderr())
 		if err != nil {
 			return err
 		}
@@ -82,7 +88,13 @@ pipit eval.`,
 	return cmd
 }
 
-func runQuantize(model, calib, group, cacheDir, out string, calibFold int, cfg quant.Config, stderr io.Writer) (*quantizeReport, error) {
+// qatOptions configure optional quantisation-aware fine-tuning.
+type qatOptions struct {
+	epochs int
+	lr     float64
+}
+
+func runQuantize(model, calib, group, cacheDir, out string, calibFold int, cfg quant.Config, qat qatOptions, stderr io.Writer) (*quantizeReport, error) {
 	m, err := loadModel(model)
 	if err != nil {
 		return nil, err
@@ -143,6 +155,13 @@ func runQuantize(model, calib, group, cacheDir, out string, calibFold int, cfg q
 		return nil, err
 	}
 	b.done("method " + qrep.Method)
+	ptq := q
+	if qat.epochs > 0 {
+		q, err = fineTuneQAT(m, c, opts, cfg.Scheme, qat, stderr)
+		if err != nil {
+			return nil, err
+		}
+	}
 	q.Meta = json.RawMessage(mustJSON(m.info))
 	if err := q.WriteFile(out); err != nil {
 		return nil, err
@@ -155,14 +174,70 @@ func runQuantize(model, calib, group, cacheDir, out string, calibFold int, cfg q
 	if err != nil {
 		return nil, err
 	}
+	pr := ir
+	if ptq != q {
+		if pr, err = evaluateSet(int8Predictor(ptq), testSet, m.info.Classes); err != nil {
+			return nil, err
+		}
+	}
 	rep := &quantizeReport{Model: model, Out: out, Method: qrep.Method, Scheme: q.Scheme, CalibFold: calibFold, CalibWindows: calSet.Len(),
 		TestFold: m.info.TestFold, TestWindows: testSet.Len(), FloatAccuracy: fr.Accuracy, Int8Accuracy: ir.Accuracy,
-		FloatClipAcc: fr.ClipAcc, Int8ClipAcc: ir.ClipAcc, Layers: qrep.Layers, Tried: qrep.Tried,
+		FloatClipAcc: fr.ClipAcc, Int8ClipAcc: ir.ClipAcc, PTQAccuracy: pr.Accuracy, QATEpochs: qat.epochs, Layers: qrep.Layers, Tried: qrep.Tried,
 		LogitCorr: qrep.LogitCorr, LogitMaxErr: qrep.LogitMaxErr, WeightBytes: qrep.WeightBytes, FloatBytes: qrep.FloatBytes, OverheadBytes: qrep.OverheadBytes}
 	for _, l := range qrep.Layers {
 		rep.PerLayerSQNRdB = append(rep.PerLayerSQNRdB, l.SQNRdB)
 	}
 	return rep, nil
+}
+
+// fineTuneQAT fine-tunes the float model with fake quantisation on its
+// training folds (validation fold for the best epoch) and converts it.
+func fineTuneQAT(m *loadedModel, c *datasets.Corpus, opts datasets.Options, s quant.Scheme, o qatOptions, stderr io.Writer) (*quant.Model, error) {
+	var trainIDs, valIDs []int
+	for _, cl := range c.Clips {
+		switch cl.Fold {
+		case m.info.TestFold:
+		case m.info.ValFold:
+			valIDs = append(valIDs, cl.ID)
+		default:
+			trainIDs = append(trainIDs, cl.ID)
+		}
+	}
+	trainSet, err := datasets.Load(c, trainIDs, opts)
+	if err != nil {
+		return nil, err
+	}
+	valSet, err := datasets.Load(c, valIDs, opts)
+	if err != nil {
+		return nil, err
+	}
+	trainSet.Stats, valSet.Stats = m.info.Stats, m.info.Stats
+	qat, err := quant.PrepareQAT(m.net, s)
+	if err != nil {
+		return nil, err
+	}
+	defer qat.Net.Close()
+	tr, err := nn.NewTrainer(qat.Net, &nn.SoftmaxCrossEntropy{Classes: len(m.info.Classes)}, nn.OptimizerConfig{Kind: nn.OptAdam}, nn.Schedule{Base: o.lr}, 1)
+	if err != nil {
+		return nil, err
+	}
+	qat.Attach(tr)
+	var b *bar
+	_, err = nn.Fit(tr, nn.FitConfig{Epochs: o.epochs, Batch: 32, Seed: 1}, trainSet, valSet,
+		func(ep, st, n int, loss, acc float64, seen int, secs float64) {
+			if st == 1 {
+				b = newBar(stderr, fmt.Sprintf("QAT epoch %d/%d", ep, o.epochs))
+			}
+			b.update(st, n, fmt.Sprintf("loss %.4f acc %.3f", loss, acc))
+		},
+		func(e nn.EpochStats) error {
+			b.done(fmt.Sprintf("loss %.4f acc %.3f | val acc %.3f", e.Loss, e.Accuracy, e.ValAcc))
+			return nil
+		})
+	if err != nil {
+		return nil, err
+	}
+	return qat.Convert()
 }
 
 func mustJSON(v any) []byte {
@@ -175,11 +250,17 @@ func mustJSON(v any) []byte {
 
 func printQuantize(w io.Writer, r *quantizeReport) {
 	fmt.Fprintf(w, "quantised %s → %s (%s weights, pow2 %v, ranges by %s on fold %d, %d windows)\n\n", r.Model, r.Out, r.Scheme.Weights, r.Scheme.Pow2, r.Method, r.CalibFold, r.CalibWindows)
+	if r.QATEpochs > 0 {
+		fmt.Fprintln(w, "post-training calibration (the table and logit figures below; the written model is the fine-tuned one):")
+	}
 	fmt.Fprintf(w, "%-3s %-14s %-6s %10s %5s %9s %12s %7s\n", "#", "op", "act", "out scale", "zp", "SQNR dB", "max |acc|", "margin")
 	for _, l := range r.Layers {
 		fmt.Fprintf(w, "%-3d %-14s %-6s %10.4g %5d %9.1f %12d %6.1fb\n", l.Index, l.Op, l.Act, l.OutScale, l.OutZeroPoint, l.SQNRdB, l.MaxAcc, l.MarginBits)
 	}
 	fmt.Fprintf(w, "\ntest fold %d (%d windows):\n  float accuracy %.3f (clips %.3f)\n  int8  accuracy %.3f (clips %.3f)\n", r.TestFold, r.TestWindows, r.FloatAccuracy, r.FloatClipAcc, r.Int8Accuracy, r.Int8ClipAcc)
+	if r.QATEpochs > 0 {
+		fmt.Fprintf(w, "  (after %d epochs of quantisation-aware fine-tuning; post-training int8 was %.3f)\n", r.QATEpochs, r.PTQAccuracy)
+	}
 	fmt.Fprintf(w, "logits on the calibration set: correlation %.5f, max |error| %.3g\n", r.LogitCorr, r.LogitMaxErr)
 	fmt.Fprintf(w, "weights: %d bytes int8 (%d as float32, ratio %.2f) + %d bytes of int32 bias, multiplier, shift\n", r.WeightBytes, r.FloatBytes, float64(r.WeightBytes)/float64(r.FloatBytes), r.OverheadBytes)
 }

@@ -99,3 +99,33 @@ func TestTrainCorpusErrors(t *testing.T) {
 		t.Errorf("unknown test fold: error %v", err)
 	}
 }
+
+func TestQuantizeWithQAT(t *testing.T) {
+	dir := tinyCorpus(t)
+	manifest := filepath.Join(dir, "manifest.csv")
+	model := filepath.Join(t.TempDir(), "m.ckpt")
+	if _, err := run(t, "train", "--data", manifest, "--out", model, "--epochs", "2", "--cache", ""); err != nil {
+		t.Fatal(err)
+	}
+	q := model + ".q"
+	out, err := run(t, "quantize", "--model", model, "--calib", manifest, "--out", q, "--cache", "", "--qat-epochs", "1", "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rep quantizeReport
+	if err := json.Unmarshal([]byte(out), &rep); err != nil {
+		t.Fatal(err)
+	}
+	if rep.QATEpochs != 1 || rep.TestWindows == 0 {
+		t.Errorf("report %+v", rep)
+	}
+	out, err = run(t, "eval", "--model", q, "--data", manifest, "--cache", "", "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var ev evalReport
+	json.Unmarshal([]byte(out), &ev)
+	if ev.Accuracy != rep.Int8Accuracy {
+		t.Errorf("eval of the QAT model %.3f, quantize reported %.3f", ev.Accuracy, rep.Int8Accuracy)
+	}
+}

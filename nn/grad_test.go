@@ -180,7 +180,7 @@ func TestFakeQuant(t *testing.T) {
 	if l.Lo != float64(float32(-0.74)) || l.Hi != 100 {
 		t.Errorf("first range [%g, %g], want the batch's", l.Lo, l.Hi)
 	}
-	net.Forward([]float32{0, 0, 0}, 1, true, nil) // EMA: 0.5·old + 0.5·0
+	net.Forward([]float32{0, 0, 0}, 1, true, nil)               // EMA: 0.5·old + 0.5·0
 	if math.Abs(l.Lo+0.37) > 1e-6 || math.Abs(l.Hi-50) > 1e-6 { // float32 inputs: within 1e-6
 		t.Errorf("EMA range [%g, %g], want [-0.37, 50]", l.Lo, l.Hi)
 	}

@@ -27,6 +27,36 @@
 // Average pooling keeps its input's scale and zero point and divides the
 // integer window sum by the window size, rounding half away from zero.
 //
+// # File format
+//
+// Two formats. The quantised model file ([Model.WriteFile]) is pipit's own
+// working format: "PIPITQM1", uint32 version, uint32 JSON length, the
+// [Model] as JSON, CRC-32. The device export ([Export]) is a flat blob and
+// a JSON scheme description, version 1 each:
+//
+//	blob   offset 0   "PIPITBLB"
+//	       offset 8   uint32 version (BlobVersion)
+//	       offset 12  uint32 total length
+//	       offset 16  uint32 CRC-32 (IEEE) of bytes [20, total)
+//	       offset 20  uint32 section count S
+//	       offset 24  S × {uint32 kind, layer, offset, length}
+//	       then 4-byte aligned sections: 1 int8 weights ((OutC, KH, KW, InC);
+//	       depthwise (KH, KW, C); dense (Out, In)), 2 int32 bias, 3 int32
+//	       multiplier, 4 int32 shift, each per output channel
+//
+// The scheme ([SchemeDoc], "format": "pipit-scheme") carries the blob's
+// size and CRC, the model info (front end, normalisation, classes, window),
+// the quantisation rules in words, input and output shapes and parameters,
+// every layer in execution order (op, shapes, kernel, stride, leading
+// padding, input and output buffer ids, activation and clamp, input and
+// output scale and zero point, weight scales, its blob sections with
+// offset, length, type and layout, MACs), the memory plan (pool size and
+// each buffer's offset and size) and totals (flash, weight and overhead
+// bytes, RAM, MACs). All little-endian. Every field is described in
+// docs/export-format.md; [Import] rejects a damaged blob or a scheme that
+// does not match it with [ErrFormat]. Readers reject unknown versions.
+// [CHeader] renders blob and layer table as C for quant/cref/c/pipit_rt.h.
+//
 // # Errors
 //
 // Networks with layers or orders the engine does not support, and

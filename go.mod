@@ -1,11 +1,12 @@
 module github.com/pipit-audio/pipit
 
-go 1.26
+go 1.26.0
 
 require (
 	github.com/go-audio/audio v1.0.0
 	github.com/go-audio/wav v1.1.0
 	github.com/spf13/cobra v1.10.2
+	golang.org/x/sys v0.50.0
 	gonum.org/v1/gonum v0.17.0
 	gonum.org/v1/plot v0.17.0
 	gorgonia.org/gorgonia v0.9.18

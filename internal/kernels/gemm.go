@@ -1,7 +1,11 @@
 // Package kernels holds pipit's float32 compute kernels: matrix products
 // in the three layouts training needs, and the im2col/col2im transforms of
-// channels-last convolution. Every function here is the portable pure-Go
-// path; each has a naive reference in the tests that it must match.
+// channels-last convolution. Each has a portable pure-Go path and, on
+// amd64 CPUs with AVX2 and FMA, an assembly path for the dot products and
+// row updates (simd_amd64.s), chosen at run time (PIPIT_NOASM=1 forces the
+// portable one). Both are checked against naive references in the tests.
+// The two paths sum in different orders, so their results differ in the
+// last bits; either is deterministic for a given machine.
 //
 // Matrices are row-major []float32 with the shapes given in each doc
 // comment. No function allocates.
@@ -21,6 +25,15 @@ func GemmNT(m, n, k int, a, b, c []float32) {
 	checkLen("GemmNT a", len(a), m*k)
 	checkLen("GemmNT b", len(b), n*k)
 	checkLen("GemmNT c", len(c), m*n)
+	if useSIMD && k >= 16 {
+		for i := 0; i < m; i++ {
+			ci := c[i*n : i*n+n]
+			for j := range ci {
+				ci[j] += dotAVX2(&a[i*k], &b[j*k], k)
+			}
+		}
+		return
+	}
 	i := 0
 	for ; i+2 <= m; i += 2 {
 		a0, a1 := a[i*k:i*k+k], a[(i+1)*k:(i+1)*k+k]
@@ -77,6 +90,16 @@ func GemmNN(m, n, k int, a, b, c []float32) {
 	checkLen("GemmNN a", len(a), m*k)
 	checkLen("GemmNN b", len(b), k*n)
 	checkLen("GemmNN c", len(c), m*n)
+	if useSIMD && n >= 16 {
+		for i := 0; i < m; i++ {
+			for p := 0; p < k; p++ {
+				if x := a[i*k+p]; x != 0 {
+					axpyAVX2(x, &b[p*n], &c[i*n], n)
+				}
+			}
+		}
+		return
+	}
 	for i := 0; i < m; i++ {
 		ci := c[i*n : i*n+n]
 		ai := a[i*k : i*k+k]
@@ -110,6 +133,16 @@ func GemmTN(m, n, k int, a, b, c []float32) {
 	checkLen("GemmTN a", len(a), k*m)
 	checkLen("GemmTN b", len(b), k*n)
 	checkLen("GemmTN c", len(c), m*n)
+	if useSIMD && n >= 16 {
+		for p := 0; p < k; p++ {
+			for i := 0; i < m; i++ {
+				if x := a[p*m+i]; x != 0 {
+					axpyAVX2(x, &b[p*n], &c[i*n], n)
+				}
+			}
+		}
+		return
+	}
 	p := 0
 	for ; p+2 <= k; p += 2 {
 		a0, a1 := a[p*m:p*m+m], a[(p+1)*m:(p+1)*m+m]

@@ -1,0 +1,22 @@
+package kernels
+
+import (
+	"os"
+
+	"golang.org/x/sys/cpu"
+)
+
+// useSIMD selects the AVX2/FMA fast paths, chosen at run time from the
+// CPU's features; PIPIT_NOASM=1 in the environment forces the portable
+// path (for comparisons and for machines that misreport).
+var useSIMD = cpu.X86.HasAVX2 && cpu.X86.HasFMA && os.Getenv("PIPIT_NOASM") != "1"
+
+// dotAVX2 returns Σ x[i]·y[i] for i < n (simd_amd64.s).
+//
+//go:noescape
+func dotAVX2(x, y *float32, n int) float32
+
+// axpyAVX2 computes y[i] += a·x[i] for i < n (simd_amd64.s).
+//
+//go:noescape
+func axpyAVX2(a float32, x, y *float32, n int)

@@ -1,0 +1,101 @@
+#include "textflag.h"
+
+// func dotAVX2(x, y *float32, n int) float32
+// Σ x[i]·y[i] with two 8-wide FMA accumulators, then a horizontal sum,
+// then a scalar tail. Needs AVX2 and FMA.
+TEXT ·dotAVX2(SB), NOSPLIT, $0-28
+	MOVQ x+0(FP), SI
+	MOVQ y+8(FP), DI
+	MOVQ n+16(FP), CX
+	VXORPS Y0, Y0, Y0
+	VXORPS Y1, Y1, Y1
+
+dot16:
+	CMPQ CX, $16
+	JL   dot8
+	VMOVUPS (SI), Y2
+	VMOVUPS 32(SI), Y3
+	VFMADD231PS (DI), Y2, Y0
+	VFMADD231PS 32(DI), Y3, Y1
+	ADDQ $64, SI
+	ADDQ $64, DI
+	SUBQ $16, CX
+	JMP  dot16
+
+dot8:
+	CMPQ CX, $8
+	JL   dotreduce
+	VMOVUPS (SI), Y2
+	VFMADD231PS (DI), Y2, Y0
+	ADDQ $32, SI
+	ADDQ $32, DI
+	SUBQ $8, CX
+
+dotreduce:
+	VADDPS       Y1, Y0, Y0
+	VEXTRACTF128 $1, Y0, X1
+	VADDPS       X1, X0, X0
+	VHADDPS      X0, X0, X0
+	VHADDPS      X0, X0, X0
+
+dottail:
+	CMPQ CX, $0
+	JE   dotdone
+	VMOVSS      (SI), X2
+	VFMADD231SS (DI), X2, X0
+	ADDQ $4, SI
+	ADDQ $4, DI
+	DECQ CX
+	JMP  dottail
+
+dotdone:
+	VZEROUPPER
+	MOVSS X0, ret+24(FP)
+	RET
+
+// func axpyAVX2(a float32, x, y *float32, n int)
+// y[i] += a·x[i], 16 then 8 lanes at a time, then a scalar tail.
+TEXT ·axpyAVX2(SB), NOSPLIT, $0-32
+	VBROADCASTSS a+0(FP), Y0
+	MOVQ x+8(FP), SI
+	MOVQ y+16(FP), DI
+	MOVQ n+24(FP), CX
+
+axpy16:
+	CMPQ CX, $16
+	JL   axpy8
+	VMOVUPS (DI), Y1
+	VMOVUPS 32(DI), Y2
+	VFMADD231PS (SI), Y0, Y1
+	VFMADD231PS 32(SI), Y0, Y2
+	VMOVUPS Y1, (DI)
+	VMOVUPS Y2, 32(DI)
+	ADDQ $64, SI
+	ADDQ $64, DI
+	SUBQ $16, CX
+	JMP  axpy16
+
+axpy8:
+	CMPQ CX, $8
+	JL   axpytail
+	VMOVUPS (DI), Y1
+	VFMADD231PS (SI), Y0, Y1
+	VMOVUPS Y1, (DI)
+	ADDQ $32, SI
+	ADDQ $32, DI
+	SUBQ $8, CX
+
+axpytail:
+	CMPQ CX, $0
+	JE   axpydone
+	VMOVSS      (DI), X1
+	VFMADD231SS (SI), X0, X1
+	VMOVSS      X1, (DI)
+	ADDQ $4, SI
+	ADDQ $4, DI
+	DECQ CX
+	JMP  axpytail
+
+axpydone:
+	VZEROUPPER
+	RET

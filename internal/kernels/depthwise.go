@@ -25,6 +25,10 @@ func DepthwiseForward(g ConvGeom, x, w, out []float32) {
 					xs := x[(ih*g.W+iw)*c : (ih*g.W+iw+1)*c]
 					ws := w[(kh*g.KW+kw)*c : (kh*g.KW+kw+1)*c]
 					xs, ws = xs[:len(o)], ws[:len(o)]
+					if useSIMD && c >= 8 {
+						fmaAVX2(&o[0], &xs[0], &ws[0], c)
+						continue
+					}
 					for ch := range o {
 						o[ch] += xs[ch] * ws[ch]
 					}
@@ -58,13 +62,23 @@ func DepthwiseBackward(g ConvGeom, x, w, dout, dx, dw []float32) {
 					xs := x[(ih*g.W+iw)*c : (ih*g.W+iw+1)*c]
 					dws := dw[(kh*g.KW+kw)*c : (kh*g.KW+kw+1)*c]
 					xs, dws = xs[:len(d)], dws[:len(d)]
+					var ws, dxs []float32
+					if dx != nil {
+						ws = w[(kh*g.KW+kw)*c : (kh*g.KW+kw+1)*c]
+						dxs = dx[(ih*g.W+iw)*c : (ih*g.W+iw+1)*c]
+						ws, dxs = ws[:len(d)], dxs[:len(d)]
+					}
+					if useSIMD && c >= 8 {
+						fmaAVX2(&dws[0], &d[0], &xs[0], c)
+						if dx != nil {
+							fmaAVX2(&dxs[0], &d[0], &ws[0], c)
+						}
+						continue
+					}
 					for ch, v := range d {
 						dws[ch] += v * xs[ch] // out = x·w ⇒ ∂/∂w = x
 					}
 					if dx != nil {
-						ws := w[(kh*g.KW+kw)*c : (kh*g.KW+kw+1)*c]
-						dxs := dx[(ih*g.W+iw)*c : (ih*g.W+iw+1)*c]
-						ws, dxs = ws[:len(d)], dxs[:len(d)]
 						for ch, v := range d {
 							dxs[ch] += v * ws[ch] // ∂/∂x = w
 						}

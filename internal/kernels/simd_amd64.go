@@ -20,3 +20,8 @@ func dotAVX2(x, y *float32, n int) float32
 //
 //go:noescape
 func axpyAVX2(a float32, x, y *float32, n int)
+
+// fmaAVX2 computes dst[i] += x[i]·y[i] for i < n (simd_amd64.s).
+//
+//go:noescape
+func fmaAVX2(dst, x, y *float32, n int)

@@ -99,3 +99,41 @@ axpytail:
 axpydone:
 	VZEROUPPER
 	RET
+
+// func fmaAVX2(dst, x, y *float32, n int)
+// dst[i] += x[i]·y[i], 8 lanes at a time, then a scalar tail.
+TEXT ·fmaAVX2(SB), NOSPLIT, $0-32
+	MOVQ dst+0(FP), DI
+	MOVQ x+8(FP), SI
+	MOVQ y+16(FP), DX
+	MOVQ n+24(FP), CX
+
+fma8:
+	CMPQ CX, $8
+	JL   fmatail
+	VMOVUPS (DI), Y0
+	VMOVUPS (SI), Y1
+	VFMADD231PS (DX), Y1, Y0
+	VMOVUPS Y0, (DI)
+	ADDQ $32, DI
+	ADDQ $32, SI
+	ADDQ $32, DX
+	SUBQ $8, CX
+	JMP  fma8
+
+fmatail:
+	CMPQ CX, $0
+	JE   fmadone
+	VMOVSS      (DI), X0
+	VMOVSS      (SI), X1
+	VFMADD231SS (DX), X1, X0
+	VMOVSS      X0, (DI)
+	ADDQ $4, DI
+	ADDQ $4, SI
+	ADDQ $4, DX
+	DECQ CX
+	JMP  fmatail
+
+fmadone:
+	VZEROUPPER
+	RET

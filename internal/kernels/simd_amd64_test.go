@@ -41,6 +41,30 @@ func TestSIMDAgainstPortable(t *testing.T) {
 			}
 		}
 	}
+	// depthwise with channel counts that use the vector path and its tail
+	for _, g := range []ConvGeom{
+		{H: 6, W: 7, C: 19, KH: 3, KW: 3, SH: 2, SW: 1, PadTop: 1, PadLeft: 1, OH: 3, OW: 7},
+		{H: 5, W: 5, C: 8, KH: 3, KW: 3, SH: 1, SW: 1, PadTop: 1, PadLeft: 1, OH: 5, OW: 5},
+	} {
+		x, w := randSlice(rng, g.H*g.W*g.C), randSlice(rng, g.KH*g.KW*g.C)
+		dout := randSlice(rng, g.OH*g.OW*g.C)
+		var res [2][3][]float32
+		for k, simd := range []bool{true, false} {
+			useSIMD = simd
+			out, dx, dw := make([]float32, len(dout)), make([]float32, len(x)), make([]float32, len(w))
+			DepthwiseForward(g, x, w, out)
+			DepthwiseBackward(g, x, w, dout, dx, dw)
+			res[k] = [3][]float32{out, dx, dw}
+		}
+		for part := 0; part < 3; part++ {
+			for i := range res[0][part] {
+				if !near(res[0][part][i], float64(res[1][part][i])) {
+					t.Fatalf("depthwise C=%d part %d: SIMD %g, portable %g", g.C, part, res[0][part][i], res[1][part][i])
+				}
+			}
+		}
+	}
+	useSIMD = true
 	x, y := randSlice(rng, 37), randSlice(rng, 37)
 	var want float64
 	for i := range x {

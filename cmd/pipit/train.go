@@ -25,7 +25,7 @@ type trainOptions struct {
 	epochs, batch, patience               int
 	seed                                  uint64
 	lr, overlap                           float64
-	skipBad, noAugment, quiet             bool
+	skipBad, noAugment                    bool
 	fe                                    features.Config
 }
 
@@ -104,7 +104,6 @@ reports mean ± standard deviation over folds.`,
 			return err
 		}
 		o.fe = cfg
-		o.quiet = false
 		corpus, err := openCorpus(o)
 		if err != nil {
 			return err

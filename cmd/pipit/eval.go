@@ -203,13 +203,18 @@ func int8Predictor(m *quant.Model) predictor {
 // evaluateSet runs a model over set and computes window and clip metrics.
 func evaluateSet(predict predictor, set *datasets.Set, classes []string) (*evalReport, error) {
 	L := len(classes)
-	n := set.Len()
-	x := make([]float32, n*set.InputSize())
+	n, in := set.Len(), set.InputSize()
 	labels := make([]int, n)
-	for i := 0; i < n; i++ {
-		labels[i] = set.Sample(i, 0, x[i*set.InputSize():(i+1)*set.InputSize()])
+	logits := make([]float32, 0, n*L)
+	const chunk = 256 // windows in memory at once, whatever the corpus size
+	x := make([]float32, chunk*in)
+	for lo := 0; lo < n; lo += chunk {
+		hi := min(lo+chunk, n)
+		for i := lo; i < hi; i++ {
+			labels[i] = set.Sample(i, 0, x[(i-lo)*in:(i-lo+1)*in])
+		}
+		logits = append(logits, predict(x[:(hi-lo)*in], hi-lo)...)
 	}
-	logits := predict(x, n)
 	loss, _, err := (&nn.SoftmaxCrossEntropy{Classes: L}).Forward(logits, labels, nil)
 	if err != nil {
 		return nil, err

@@ -9,6 +9,8 @@ import "fmt"
 type ReLU struct {
 	Cap float32 // 0 for plain ReLU
 	sz  int
+	// set by forward/backward for runShard
+	x, out, dx, dout []float32
 }
 
 // NewReLU returns max(0, x).
@@ -50,28 +52,62 @@ func (l *ReLU) state() []ParamSpec       { return nil }
 func (l *ReLU) bind(_, _, _ [][]float32) {}
 func (l *ReLU) plan(int)                 {}
 
-// forward: x and out are (N, H, W, C); out may not alias x.
-func (l *ReLU) forward(_ *Pass, out, x []float32, n int) {
-	out, x = out[:n*l.sz], x[:n*l.sz]
-	for i, v := range x {
-		if v < 0 {
-			v = 0
-		} else if l.Cap > 0 && v > l.Cap {
-			v = l.Cap
-		}
-		out[i] = v
-	}
+// forward: x and out are (N, H, W, C); out may not alias x. Samples are
+// split over the network's workers.
+func (l *ReLU) forward(p *Pass, out, x []float32, n int) {
+	l.x, l.out = x, out
+	p.exec.run(l, phaseForward, n)
 }
 
 // backward accumulates dout into dx where the input was inside (0, Cap).
-func (l *ReLU) backward(_ *Pass, dx, dout, x, _ []float32, n int) {
+func (l *ReLU) backward(p *Pass, dx, dout, x, _ []float32, n int) {
 	if dx == nil {
 		return
 	}
-	dx, dout, x = dx[:n*l.sz], dout[:n*l.sz], x[:n*l.sz]
-	for i, v := range x {
-		if v > 0 && (l.Cap == 0 || v < l.Cap) {
-			dx[i] += dout[i]
+	l.x, l.dx, l.dout = x, dx, dout
+	p.exec.run(l, phaseBackward, n)
+}
+
+func (l *ReLU) runShard(phase, _, lo, hi int) {
+	a, b := lo*l.sz, hi*l.sz
+	x := l.x[a:b]
+	switch phase {
+	case phaseForward:
+		out := l.out[a:b]
+		out = out[:len(x)]
+		if l.Cap == 0 {
+			for i, v := range x {
+				if v < 0 {
+					v = 0
+				}
+				out[i] = v
+			}
+			return
+		}
+		c := l.Cap
+		for i, v := range x {
+			if v < 0 {
+				v = 0
+			} else if v > c {
+				v = c
+			}
+			out[i] = v
+		}
+	case phaseBackward:
+		dx, dout := l.dx[a:b], l.dout[a:b]
+		dx, dout = dx[:len(x)], dout[:len(x)]
+		if l.Cap == 0 {
+			for i, v := range x {
+				if v > 0 {
+					dx[i] += dout[i]
+				}
+			}
+			return
+		}
+		for i, v := range x {
+			if v > 0 && v < l.Cap {
+				dx[i] += dout[i]
+			}
 		}
 	}
 }

@@ -83,30 +83,8 @@ func quantizeLayers(fl []FloatLayer, act []QParams, s Scheme) ([]Layer, error) {
 			continue
 		}
 		oc := len(f.Bias)
-		per := len(f.Weight) / oc
-		chanOf := func(i int) int { return i / per }
-		if f.Op == OpDepthwise {
-			chanOf = func(i int) int { return i % oc }
-		}
-		// weight scales: max |w| / 127 per channel or per tensor
-		maxAbs := make([]float64, oc)
-		for i, w := range f.Weight {
-			c := chanOf(i)
-			maxAbs[c] = math.Max(maxAbs[c], math.Abs(float64(w)))
-		}
-		if s.Weights == PerTensor {
-			m := 0.0
-			for _, v := range maxAbs {
-				m = math.Max(m, v)
-			}
-			for c := range maxAbs {
-				maxAbs[c] = m
-			}
-		}
-		l.WeightScale = make([]float64, oc)
-		for c, m := range maxAbs {
-			l.WeightScale[c] = weightScale(m, s.Pow2)
-		}
+		scales, chanOf := weightScales(f.Weight, oc, f.Op == OpDepthwise, s)
+		l.WeightScale = scales
 		l.Weights = make([]int8, len(f.Weight))
 		for i, w := range f.Weight {
 			q := math.Round(float64(w) / l.WeightScale[chanOf(i)])
@@ -139,6 +117,38 @@ func quantizeLayers(fl []FloatLayer, act []QParams, s Scheme) ([]Layer, error) {
 		out = append(out, l)
 	}
 	return out, nil
+}
+
+// weightScales returns the symmetric int8 scale of every output channel of
+// weights w (per tensor when the scheme says so) and the map from a weight
+// index to its channel: output-channel-major layouts, except depthwise
+// (KH, KW, C), whose channel is the fastest axis. Conversion and
+// quantisation-aware training both use it, so they agree on the grid.
+func weightScales(w []float32, oc int, depthwise bool, s Scheme) ([]float64, func(int) int) {
+	per := len(w) / oc
+	chanOf := func(i int) int { return i / per }
+	if depthwise {
+		chanOf = func(i int) int { return i % oc }
+	}
+	maxAbs := make([]float64, oc)
+	for i, v := range w {
+		c := chanOf(i)
+		maxAbs[c] = math.Max(maxAbs[c], math.Abs(float64(v)))
+	}
+	if s.Weights == PerTensor {
+		m := 0.0
+		for _, v := range maxAbs {
+			m = math.Max(m, v)
+		}
+		for c := range maxAbs {
+			maxAbs[c] = m
+		}
+	}
+	scales := make([]float64, oc)
+	for c, m := range maxAbs {
+		scales[c] = weightScale(m, s.Pow2)
+	}
+	return scales, chanOf
 }
 
 // WeightBytes returns the int8 weight bytes and the overhead bytes (int32

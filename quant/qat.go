@@ -158,27 +158,12 @@ func (q *QAT) install() {
 func fakeQuantWeights(w []float32, e nn.ParamEntry, s Scheme) {
 	depthwise := strings.Contains(e.Name, ".depthwise.")
 	oc := e.Shape[0]
-	chanOf := func(i int) int { return i / (len(w) / oc) }
 	if depthwise {
 		oc = e.Shape[len(e.Shape)-1]
-		chanOf = func(i int) int { return i % oc }
 	}
-	maxAbs := make([]float64, oc)
+	scales, chanOf := weightScales(w, oc, depthwise, s)
 	for i, v := range w {
-		c := chanOf(i)
-		maxAbs[c] = math.Max(maxAbs[c], math.Abs(float64(v)))
-	}
-	if s.Weights == PerTensor {
-		m := 0.0
-		for _, v := range maxAbs {
-			m = math.Max(m, v)
-		}
-		for c := range maxAbs {
-			maxAbs[c] = m
-		}
-	}
-	for i, v := range w {
-		sc := weightScale(maxAbs[chanOf(i)], s.Pow2)
+		sc := scales[chanOf(i)]
 		w[i] = float32(sc * math.Max(-127, math.Min(127, math.Round(float64(v)/sc))))
 	}
 }

@@ -1,6 +1,10 @@
 package nn
 
-import "fmt"
+import (
+	"fmt"
+
+	"github.com/pipit-audio/pipit/internal/kernels"
+)
 
 // ReLU is max(0, x), or with Cap > 0 the clipped min(max(0, x), Cap)
 // (ReLU6 for Cap = 6; Howard et al. 2017 §3.2 use it in MobileNets). Its
@@ -59,7 +63,8 @@ func (l *ReLU) forward(p *Pass, out, x []float32, n int) {
 	p.exec.run(l, phaseForward, n)
 }
 
-// backward accumulates dout into dx where the input was inside (0, Cap).
+// backward writes dout into dx where the input was inside (0, Cap), 0
+// elsewhere.
 func (l *ReLU) backward(p *Pass, dx, dout, x, _ []float32, n int) {
 	if dx == nil {
 		return
@@ -68,47 +73,24 @@ func (l *ReLU) backward(p *Pass, dx, dout, x, _ []float32, n int) {
 	p.exec.run(l, phaseBackward, n)
 }
 
+// writesDx implements dxWriter: backward overwrites dx.
+func (l *ReLU) writesDx() {}
+
+// hi returns the upper clamp: Cap, or +Inf for plain ReLU.
+func (l *ReLU) hi() float32 {
+	if l.Cap > 0 {
+		return l.Cap
+	}
+	return posInf32
+}
+
 func (l *ReLU) runShard(phase, _, lo, hi int) {
 	a, b := lo*l.sz, hi*l.sz
-	x := l.x[a:b]
 	switch phase {
 	case phaseForward:
-		out := l.out[a:b]
-		out = out[:len(x)]
-		if l.Cap == 0 {
-			for i, v := range x {
-				if v < 0 {
-					v = 0
-				}
-				out[i] = v
-			}
-			return
-		}
-		c := l.Cap
-		for i, v := range x {
-			if v < 0 {
-				v = 0
-			} else if v > c {
-				v = c
-			}
-			out[i] = v
-		}
+		kernels.Clamp(l.out[a:b], l.x[a:b], 0, l.hi())
 	case phaseBackward:
-		dx, dout := l.dx[a:b], l.dout[a:b]
-		dx, dout = dx[:len(x)], dout[:len(x)]
-		if l.Cap == 0 {
-			for i, v := range x {
-				if v > 0 {
-					dx[i] += dout[i]
-				}
-			}
-			return
-		}
-		for i, v := range x {
-			if v > 0 && v < l.Cap {
-				dx[i] += dout[i]
-			}
-		}
+		kernels.MaskSet(l.dx[a:b], l.dout[a:b], l.x[a:b], 0, l.hi())
 	}
 }
 

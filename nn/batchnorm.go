@@ -3,6 +3,8 @@ package nn
 import (
 	"fmt"
 	"math"
+
+	"github.com/pipit-audio/pipit/internal/kernels"
 )
 
 // BatchNorm normalises each channel (Ioffe & Szegedy 2015,
@@ -20,15 +22,18 @@ type BatchNorm struct {
 	BetaGrad      []float32
 	RunMean       []float32 // (C), views into Params.State
 	RunVar        []float32
-	// filled by forward in training, read by backward:
-	xhat             []float32   // (N, H, W, C) normalised input
-	invstd           []float64   // (C) 1/√(σ²_B+Eps)
-	train            bool        // forward ran with batch statistics
-	mean             []float64   // (C) μ_B in training, the running mean in inference
-	n                int         // batch size of the last forward
-	part             [][]float64 // per shard (2C) partial sums
-	sumDy, sumDyXhat []float64   // (C), filled by backward
-	scale, shift     []float32   // (C) inference affine
+	// filled by forward, read by backward:
+	invstd     []float64   // (C) 1/√(σ²+Eps) of the statistics used
+	train      bool        // forward ran with batch statistics
+	mean       []float64   // (C) μ_B in training, the running mean in inference
+	mean32     []float32   // (C) mean rounded to float32 (the kernels' shift)
+	n          int         // batch size of the last forward
+	part       [][]float64 // per shard (2C) partial sums
+	sum1, sum2 []float64   // (C) reduced sums
+	zero       []float32   // (C) zeros
+	// per-channel coefficients of the kernels
+	scale, shift     []float32 // forward: out = x·scale + shift
+	ga, gb, gk       []float32 // backward: dx = ga·dy + gb·(x − mean32) + gk
 	x, out, dx, dout []float32
 }
 
@@ -76,13 +81,12 @@ func (l *BatchNorm) bind(data, grad, state [][]float32) {
 }
 
 func (l *BatchNorm) plan(n int) {
-	if len(l.xhat) < n*l.hw*l.c {
-		l.xhat = make([]float32, n*l.hw*l.c)
-	}
 	if l.invstd == nil {
-		l.invstd, l.mean = make([]float64, l.c), make([]float64, l.c)
-		l.sumDy, l.sumDyXhat = make([]float64, l.c), make([]float64, l.c)
-		l.scale, l.shift = make([]float32, l.c), make([]float32, l.c)
+		c := l.c
+		l.invstd, l.mean, l.sum1, l.sum2 = make([]float64, c), make([]float64, c), make([]float64, c), make([]float64, c)
+		l.mean32, l.zero = make([]float32, c), make([]float32, c)
+		l.scale, l.shift = make([]float32, c), make([]float32, c)
+		l.ga, l.gb, l.gk = make([]float32, c), make([]float32, c), make([]float32, c)
 	}
 	for len(l.part) < shardCount(n) {
 		l.part = append(l.part, make([]float64, 2*l.c))
@@ -91,77 +95,94 @@ func (l *BatchNorm) plan(n int) {
 
 const (
 	bnPhaseSum = iota
-	bnPhaseVar
 	bnPhaseApply
 	bnPhaseGradSums
 	bnPhaseGradInput
 )
 
-// forward: x and out are (N, H, W, C).
+// writesDx implements dxWriter: backward overwrites dx.
+func (l *BatchNorm) writesDx() {}
+
+// forward: x and out are (N, H, W, C). In training the batch's first two
+// moments per channel come from one pass (Σx and Σx² in float64; the
+// variance E[x²] − μ², which float64 keeps accurate for the ranges of
+// float32 activations); both modes then apply out = x·scale + shift with
+// scale = γ·invstd and shift = β − γ·μ·invstd, one fused multiply-add per
+// value.
 func (l *BatchNorm) forward(p *Pass, out, x []float32, n int) {
 	l.x, l.out, l.train, l.n = x, out, p.Train, n
 	c := l.c
-	if !p.Train {
+	if p.Train {
+		m := float64(n * l.hw)
+		k := shardCount(n)
+		p.exec.run(l, bnPhaseSum, n)
+		l.sumParts(k, l.sum1, l.sum2)
 		for ch := 0; ch < c; ch++ {
-			inv := 1 / math.Sqrt(float64(l.RunVar[ch])+l.Eps)
-			l.mean[ch], l.invstd[ch] = float64(l.RunMean[ch]), inv
-			l.scale[ch] = float32(float64(l.Gamma[ch]) * inv)
-			l.shift[ch] = float32(float64(l.Beta[ch]) - float64(l.Gamma[ch])*float64(l.RunMean[ch])*inv)
+			mean := l.sum1[ch] / m
+			v := max(l.sum2[ch]/m-mean*mean, 0)
+			unbiased := v
+			if m > 1 {
+				unbiased = v * m / (m - 1)
+			}
+			l.RunMean[ch] = float32((1-l.Momentum)*float64(l.RunMean[ch]) + l.Momentum*mean)
+			l.RunVar[ch] = float32((1-l.Momentum)*float64(l.RunVar[ch]) + l.Momentum*unbiased)
+			l.mean[ch], l.invstd[ch] = mean, 1/math.Sqrt(v+l.Eps)
 		}
-		p.exec.run(l, bnPhaseApply, n)
-		return
+	} else {
+		for ch := 0; ch < c; ch++ {
+			l.mean[ch], l.invstd[ch] = float64(l.RunMean[ch]), 1/math.Sqrt(float64(l.RunVar[ch])+l.Eps)
+		}
 	}
-	m := float64(n * l.hw)
-	k := shardCount(n)
-	p.exec.run(l, bnPhaseSum, n)
-	l.sumParts(k, l.mean, nil)
-	for ch := range l.mean {
-		l.mean[ch] /= m
-	}
-	p.exec.run(l, bnPhaseVar, n)
-	vars := l.invstd // reuse as scratch
-	l.sumParts(k, vars, nil)
 	for ch := 0; ch < c; ch++ {
-		v := vars[ch] / m
-		unbiased := v
-		if m > 1 {
-			unbiased = v * m / (m - 1)
-		}
-		l.RunMean[ch] = float32((1-l.Momentum)*float64(l.RunMean[ch]) + l.Momentum*l.mean[ch])
-		l.RunVar[ch] = float32((1-l.Momentum)*float64(l.RunVar[ch]) + l.Momentum*unbiased)
-		l.invstd[ch] = 1 / math.Sqrt(v+l.Eps)
+		g := float64(l.Gamma[ch]) * l.invstd[ch]
+		l.mean32[ch] = float32(l.mean[ch])
+		l.scale[ch] = float32(g)
+		l.shift[ch] = float32(float64(l.Beta[ch]) - g*l.mean[ch])
 	}
 	p.exec.run(l, bnPhaseApply, n)
 }
 
 // sumParts adds the per-shard partial sums in shard order: the first C
-// entries of each part into a, the next C into b (if not nil).
+// entries of each part into a, the next C into b.
 func (l *BatchNorm) sumParts(k int, a, b []float64) {
 	clear(a)
-	if b != nil {
-		clear(b)
-	}
+	clear(b)
 	for s := 0; s < k; s++ {
 		for ch := 0; ch < l.c; ch++ {
 			a[ch] += l.part[s][ch]
-			if b != nil {
-				b[ch] += l.part[s][l.c+ch]
-			}
+			b[ch] += l.part[s][l.c+ch]
 		}
 	}
 }
 
-// backward accumulates into dx (if not nil), GammaGrad and BetaGrad. After
-// a training forward it differentiates through the batch statistics,
-// dx = Gamma·invstd/M · (M·dy − Σdy − xhat·Σ(dy·xhat)); after an inference
-// forward the statistics are constants and dx = Gamma·invstd·dy.
+// backward writes dx (if not nil) and accumulates GammaGrad and BetaGrad.
+// With xhat = (x−μ)·invstd, after a training forward it differentiates
+// through the batch statistics,
+// dx = γ·invstd/M · (M·dy − Σdy − xhat·Σ(dy·xhat)); after an inference
+// forward the statistics are constants and dx = γ·invstd·dy. Both are
+// evaluated as dx = ga·dy + gb·(x − μ32) + gk with per-channel
+// coefficients, μ32 being μ rounded to float32 (its rounding error is
+// folded into gk and into Σ(dy·xhat) in float64).
 func (l *BatchNorm) backward(p *Pass, dx, dout, x, out []float32, n int) {
 	l.x, l.dx, l.dout = x, dx, dout
 	p.exec.run(l, bnPhaseGradSums, n)
-	l.sumParts(shardCount(n), l.sumDy, l.sumDyXhat)
+	l.sumParts(shardCount(n), l.sum1, l.sum2)
+	m := float64(l.n * l.hw)
 	for ch := 0; ch < l.c; ch++ {
-		l.BetaGrad[ch] += float32(l.sumDy[ch])      // y = γ·xhat + β
-		l.GammaGrad[ch] += float32(l.sumDyXhat[ch]) // ∂y/∂γ = xhat
+		inv := l.invstd[ch]
+		sumDy := l.sum1[ch]
+		dmu := float64(l.mean32[ch]) - l.mean[ch]
+		sumDyXhat := (l.sum2[ch] + dmu*sumDy) * inv // Σ dy·(x−μ)·invstd
+		l.BetaGrad[ch] += float32(sumDy)             // y = γ·xhat + β
+		l.GammaGrad[ch] += float32(sumDyXhat)        // ∂y/∂γ = xhat
+		a := float64(l.Gamma[ch]) * inv
+		var b, k float64
+		if l.train {
+			g := a / m
+			b = -g * sumDyXhat * inv
+			k = -g*sumDy + b*dmu
+		}
+		l.ga[ch], l.gb[ch], l.gk[ch] = float32(a), float32(b), float32(k)
 	}
 	if dx != nil {
 		p.exec.run(l, bnPhaseGradInput, n)
@@ -173,79 +194,22 @@ func (l *BatchNorm) runShard(phase, s, lo, hi int) {
 	a, b := lo*l.hw*c, hi*l.hw*c
 	switch phase {
 	case bnPhaseSum:
-		part := l.part[s][:c]
+		part := l.part[s]
 		clear(part)
 		x := l.x[a:b]
-		for q := 0; q < len(x); q += c {
-			for ch, v := range x[q : q+c] {
-				part[ch] += float64(v)
-			}
-		}
-	case bnPhaseVar:
-		part := l.part[s][:c]
-		clear(part)
-		x := l.x[a:b]
-		for q := 0; q < len(x); q += c {
-			for ch, v := range x[q : q+c] {
-				d := float64(v) - l.mean[ch]
-				part[ch] += d * d
-			}
-		}
+		kernels.ChanDot(x, x, l.zero, c, part[:c], part[c:])
 	case bnPhaseApply:
-		x, out := l.x[a:b], l.out[a:b]
-		if !l.train {
-			for q := 0; q < len(x); q += c {
-				xs, os := x[q:q+c], out[q:q+c]
-				for ch, v := range xs {
-					os[ch] = v*l.scale[ch] + l.shift[ch]
-				}
-			}
-			return
-		}
-		xh := l.xhat[a:b]
-		for q := 0; q < len(x); q += c {
-			for ch, v := range x[q : q+c] {
-				h := float32((float64(v) - l.mean[ch]) * l.invstd[ch])
-				xh[q+ch] = h
-				out[q+ch] = l.Gamma[ch]*h + l.Beta[ch]
-			}
-		}
+		kernels.ChanAffine(l.out[a:b], l.x[a:b], l.scale, l.shift, c, negInf32, posInf32)
 	case bnPhaseGradSums:
 		part := l.part[s]
 		clear(part)
-		dy := l.dout[a:b]
-		for q := 0; q < len(dy); q += c {
-			for ch, v := range dy[q : q+c] {
-				part[ch] += float64(v) // Σ dy (dBeta)
-				part[c+ch] += float64(v) * l.xhatAt(a+q+ch, ch)
-			}
-		}
+		kernels.ChanDot(l.dout[a:b], l.x[a:b], l.mean32, c, part[:c], part[c:])
 	case bnPhaseGradInput:
-		dy, dx := l.dout[a:b], l.dx[a:b]
-		if !l.train {
-			for q := 0; q < len(dy); q += c {
-				for ch, v := range dy[q : q+c] {
-					dx[q+ch] += float32(float64(l.Gamma[ch]) * l.invstd[ch] * float64(v))
-				}
-			}
-			return
-		}
-		xh := l.xhat[a:b]
-		m := float64(l.n * l.hw)
-		for q := 0; q < len(dy); q += c {
-			for ch, v := range dy[q : q+c] {
-				g := float64(l.Gamma[ch]) * l.invstd[ch] / m
-				dx[q+ch] += float32(g * (m*float64(v) - l.sumDy[ch] - float64(xh[q+ch])*l.sumDyXhat[ch]))
-			}
-		}
+		kernels.ChanLinear(l.dx[a:b], l.dout[a:b], l.x[a:b], l.ga, l.mean32, l.gb, l.gk, c)
 	}
 }
 
-// xhatAt returns the normalised input at flat index i (channel ch): stored
-// by a training forward, recomputed from the running statistics otherwise.
-func (l *BatchNorm) xhatAt(i, ch int) float64 {
-	if l.train {
-		return float64(l.xhat[i])
-	}
-	return (float64(l.x[i]) - l.mean[ch]) * l.invstd[ch]
-}
+var (
+	posInf32 = float32(math.Inf(1))
+	negInf32 = float32(math.Inf(-1))
+)

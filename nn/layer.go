@@ -38,7 +38,9 @@ type Pass struct {
 //     method that allocates);
 //   - forward computes out from x, both (N, H, W, C) for n samples;
 //   - backward accumulates into dx (nil for the first layer) and into the
-//     parameter gradients, given dout and the x and out of forward.
+//     parameter gradients, given dout and the x and out of forward;
+//     layers that implement dxWriter overwrite dx instead, so the network
+//     need not clear it first.
 type Layer interface {
 	// Kind returns the spec keyword of the layer ("conv", "relu", ...).
 	Kind() string
@@ -58,6 +60,10 @@ type Layer interface {
 // buffer once batch norm is folded and activations fused (the cost
 // model's memory plan).
 type inPlaceLayer interface{ elementwise() }
+
+// dxWriter marks layers whose backward writes every value of dx rather
+// than adding to it.
+type dxWriter interface{ writesDx() }
 
 // macLayer is implemented by layers that multiply-accumulate.
 type macLayer interface {

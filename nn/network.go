@@ -197,7 +197,9 @@ func (n *Network) Backward(x, dout []float32, batch int) {
 		if i > 0 {
 			sz := batch * n.Shapes[i-1].Size()
 			dx, in = n.grads[i-1][:sz], n.acts[i-1][:sz]
-			clear(dx)
+			if _, ok := n.Layers[i].(dxWriter); !ok {
+				clear(dx)
+			}
 		} else {
 			in = x
 		}

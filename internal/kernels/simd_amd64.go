@@ -25,3 +25,20 @@ func axpyAVX2(a float32, x, y *float32, n int)
 //
 //go:noescape
 func fmaAVX2(dst, x, y *float32, n int)
+
+// The element-wise kernels of vec.go (vec_amd64.s).
+
+//go:noescape
+func clampAVX2(dst, src *float32, n int, lo, hi float32)
+
+//go:noescape
+func maskSetAVX2(dst, gr, x *float32, n int, lo, hi float32)
+
+//go:noescape
+func chanAffineAVX2(dst, src, scale, shift *float32, rows, c int, lo, hi float32)
+
+//go:noescape
+func chanDotAVX2(a, b, mu *float32, rows, c int, sa, sab *float64)
+
+//go:noescape
+func chanLinearAVX2(dst, gr, x, a, mu, b, k *float32, rows, c int)

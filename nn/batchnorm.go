@@ -173,8 +173,8 @@ func (l *BatchNorm) backward(p *Pass, dx, dout, x, out []float32, n int) {
 		sumDy := l.sum1[ch]
 		dmu := float64(l.mean32[ch]) - l.mean[ch]
 		sumDyXhat := (l.sum2[ch] + dmu*sumDy) * inv // Σ dy·(x−μ)·invstd
-		l.BetaGrad[ch] += float32(sumDy)             // y = γ·xhat + β
-		l.GammaGrad[ch] += float32(sumDyXhat)        // ∂y/∂γ = xhat
+		l.BetaGrad[ch] += float32(sumDy)            // y = γ·xhat + β
+		l.GammaGrad[ch] += float32(sumDyXhat)       // ∂y/∂γ = xhat
 		a := float64(l.Gamma[ch]) * inv
 		var b, k float64
 		if l.train {

@@ -101,6 +101,7 @@ type Conv2D struct {
 	Bias       []float32 // (OutC), nil without bias
 	WeightGrad []float32 // Weight's shape, view into Params.Grad
 	BiasGrad   []float32
+	wT         []float32   // (KH·KW·InC, OutC) transposed weights, refreshed by forward
 	cols       [][]float32 // per shard (OH·OW, KH·KW·InC) im2col workspace, sized by plan
 	dcols      [][]float32 // per shard, same shape, backward only
 	grads      shardGrads
@@ -188,6 +189,9 @@ func (l *Conv2D) plan(n int) {
 		}
 	}
 	l.grads.plan(k, len(l.Weight), len(l.Bias))
+	if len(l.wT) < len(l.Weight) {
+		l.wT = make([]float32, len(l.Weight))
+	}
 }
 
 func (l *Conv2D) macs() int64 {
@@ -199,9 +203,12 @@ const (
 	phaseBackward
 )
 
-// forward: x is (N, H, W, InC); out is (N, OH, OW, OutC).
+// forward: x is (N, H, W, InC); out is (N, OH, OW, OutC). The weights are
+// transposed once per call so that every product is C += A·B with
+// contiguous rows of B (the layout of the blocked matrix kernels).
 func (l *Conv2D) forward(p *Pass, out, x []float32, n int) {
 	l.x, l.out = x, out
+	kernels.Transpose(l.wT, l.Weight, l.cfg.Filters, l.g.KH*l.g.KW*l.g.C)
 	p.exec.run(l, phaseForward, n)
 }
 
@@ -218,47 +225,74 @@ func (l *Conv2D) runShard(phase, s, lo, hi int) {
 	g := l.g
 	inSize, outSize := g.H*g.W*g.C, g.OH*g.OW*l.cfg.Filters
 	pos, k, oc := g.OH*g.OW, g.KH*g.KW*g.C, l.cfg.Filters
+	if l.direct {
+		// pointwise: the shard's input is already its (samples·positions, InC)
+		// column matrix, so each product runs once over the whole shard.
+		rows := (hi - lo) * pos
+		xs := l.x[lo*inSize : hi*inSize]
+		switch phase {
+		case phaseForward:
+			os := l.out[lo*outSize : hi*outSize]
+			l.initOut(os, rows)
+			kernels.GemmNN(rows, oc, k, xs, l.wT, os)
+		case phaseBackward:
+			ds := l.dout[lo*outSize : hi*outSize]
+			kernels.GemmTN(oc, k, rows, ds, xs, l.grads.w[s])
+			l.biasGrad(s, ds, rows)
+			if l.dx != nil {
+				kernels.GemmNN(rows, k, oc, ds, l.Weight, l.dx[lo*inSize:hi*inSize])
+			}
+		}
+		return
+	}
 	for i := lo; i < hi; i++ {
 		xi := l.x[i*inSize : (i+1)*inSize]
-		cols := xi
-		if !l.direct {
-			cols = l.cols[s]
-			kernels.Im2col(g, xi, cols)
-		}
+		cols := l.cols[s]
+		kernels.Im2col(g, xi, cols)
 		switch phase {
 		case phaseForward:
 			oi := l.out[i*outSize : (i+1)*outSize]
-			if l.Bias != nil {
-				for q := 0; q < pos; q++ {
-					copy(oi[q*oc:(q+1)*oc], l.Bias)
-				}
-			} else {
-				clear(oi)
-			}
-			kernels.GemmNT(pos, oc, k, cols, l.Weight, oi)
+			l.initOut(oi, pos)
+			kernels.GemmNN(pos, oc, k, cols, l.wT, oi)
 		case phaseBackward:
 			di := l.dout[i*outSize : (i+1)*outSize]
 			// out = cols·Wᵀ ⇒ dW += doutᵀ·cols, dcols = dout·W
 			kernels.GemmTN(oc, k, pos, di, cols, l.grads.w[s])
-			if l.Bias != nil {
-				bg := l.grads.b[s]
-				for q := 0; q < pos; q++ {
-					for o, v := range di[q*oc : (q+1)*oc] {
-						bg[o] += v
-					}
-				}
-			}
+			l.biasGrad(s, di, pos)
 			if l.dx != nil {
-				dxi := l.dx[i*inSize : (i+1)*inSize]
-				if l.direct {
-					kernels.GemmNN(pos, k, oc, di, l.Weight, dxi)
-				} else {
-					dc := l.dcols[s]
-					clear(dc)
-					kernels.GemmNN(pos, k, oc, di, l.Weight, dc)
-					kernels.Col2im(g, dc, dxi)
-				}
+				dc := l.dcols[s]
+				clear(dc)
+				kernels.GemmNN(pos, k, oc, di, l.Weight, dc)
+				kernels.Col2im(g, dc, l.dx[i*inSize:(i+1)*inSize])
 			}
+		}
+	}
+}
+
+// initOut sets rows output rows to the bias (or zero) before the product
+// adds to them.
+func (l *Conv2D) initOut(out []float32, rows int) {
+	oc := l.cfg.Filters
+	if l.Bias == nil {
+		clear(out[:rows*oc])
+		return
+	}
+	for q := 0; q < rows; q++ {
+		copy(out[q*oc:(q+1)*oc], l.Bias)
+	}
+}
+
+// biasGrad adds the column sums of dout (rows, OutC) to shard s's bias
+// gradient.
+func (l *Conv2D) biasGrad(s int, dout []float32, rows int) {
+	if l.Bias == nil {
+		return
+	}
+	oc := l.cfg.Filters
+	bg := l.grads.b[s]
+	for q := 0; q < rows; q++ {
+		for o, v := range dout[q*oc : (q+1)*oc] {
+			bg[o] += v
 		}
 	}
 }

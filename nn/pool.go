@@ -2,7 +2,6 @@ package nn
 
 import (
 	"fmt"
-	"math"
 
 	"github.com/pipit-audio/pipit/internal/kernels"
 )
@@ -104,41 +103,79 @@ func (l *Pool) runShard(phase, _, lo, hi int) {
 			for ow := 0; ow < g.OW; ow++ {
 				w0, w1 := max(ow*g.SW-g.PadLeft, 0), min(ow*g.SW-g.PadLeft+g.KW, g.W)
 				o := i*outSize + (oh*g.OW+ow)*c
-				count := float32((h1 - h0) * (w1 - w0))
-				for ch := 0; ch < c; ch++ {
-					switch {
-					case phase == phaseForward && l.Max:
-						best, at := float32(math.Inf(-1)), int32(-1)
-						for ih := h0; ih < h1; ih++ {
-							for iw := w0; iw < w1; iw++ {
-								idx := i*inSize + (ih*g.W+iw)*c + ch
-								if v := l.x[idx]; v > best || at < 0 {
-									best, at = v, int32(idx)
-								}
-							}
-						}
-						l.out[o+ch], l.arg[o+ch] = best, at
-					case phase == phaseForward:
-						var s float32
-						for ih := h0; ih < h1; ih++ {
-							for iw := w0; iw < w1; iw++ {
-								s += l.x[i*inSize+(ih*g.W+iw)*c+ch]
-							}
-						}
-						l.out[o+ch] = s / count
-					case l.Max:
-						l.dx[l.arg[o+ch]] += l.dout[o+ch] // out = x[arg]
-					default:
-						d := l.dout[o+ch] / count // out = Σ x / count
-						for ih := h0; ih < h1; ih++ {
-							for iw := w0; iw < w1; iw++ {
-								l.dx[i*inSize+(ih*g.W+iw)*c+ch] += d
+				switch {
+				case phase == phaseForward && l.Max:
+					l.maxWindow(l.out[o:o+c], l.arg[o:o+c], i*inSize, h0, h1, w0, w1)
+				case phase == phaseForward:
+					l.avgWindow(l.out[o:o+c], i*inSize, h0, h1, w0, w1)
+				case l.Max:
+					for ch, at := range l.arg[o : o+c] {
+						l.dx[at] += l.dout[o+ch] // out = x[arg]
+					}
+				default:
+					count := float32((h1 - h0) * (w1 - w0)) // out = Σ x / count
+					d := l.dout[o : o+c]
+					for ih := h0; ih < h1; ih++ {
+						for iw := w0; iw < w1; iw++ {
+							b := i*inSize + (ih*g.W+iw)*c
+							dxs := l.dx[b : b+c]
+							for ch, v := range d {
+								dxs[ch] += v / count
 							}
 						}
 					}
 				}
 			}
 		}
+	}
+}
+
+// maxWindow writes the per-channel maximum over the window rows [h0, h1)
+// and columns [w0, w1) of the sample at x offset base into best, and its
+// flat input index into arg; ties keep the first position in row-major
+// order.
+func (l *Pool) maxWindow(best []float32, arg []int32, base, h0, h1, w0, w1 int) {
+	g := l.g
+	c := g.C
+	first := true
+	for ih := h0; ih < h1; ih++ {
+		for iw := w0; iw < w1; iw++ {
+			b := base + (ih*g.W+iw)*c
+			xs := l.x[b : b+c]
+			if first {
+				copy(best, xs)
+				for ch := range arg {
+					arg[ch] = int32(b + ch)
+				}
+				first = false
+				continue
+			}
+			for ch, v := range xs {
+				if v > best[ch] {
+					best[ch], arg[ch] = v, int32(b+ch)
+				}
+			}
+		}
+	}
+}
+
+// avgWindow writes the per-channel mean over the window (summed in row-major
+// order) into out.
+func (l *Pool) avgWindow(out []float32, base, h0, h1, w0, w1 int) {
+	g := l.g
+	c := g.C
+	clear(out)
+	for ih := h0; ih < h1; ih++ {
+		for iw := w0; iw < w1; iw++ {
+			b := base + (ih*g.W+iw)*c
+			for ch, v := range l.x[b : b+c] {
+				out[ch] += v
+			}
+		}
+	}
+	count := float32((h1 - h0) * (w1 - w0))
+	for ch := range out {
+		out[ch] /= count
 	}
 }
 

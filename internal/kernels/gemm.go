@@ -83,21 +83,19 @@ func GemmNT(m, n, k int, a, b, c []float32) {
 	}
 }
 
-// GemmNN computes C += A·B with A (M, K), B (K, N), C (M, N), as rank-one
+// tnScratch bounds the transposed product GemmTN keeps on the stack.
+const tnScratch = 2048
+
+// GemmNN computes C += A·B with A (M, K), B (K, N), C (M, N): with AVX2
+// and N ≥ 8 by the register-blocked micro-kernels, otherwise as rank-one
 // updates of C's rows (contiguous inner loops over N). It panics on short
 // slices.
 func GemmNN(m, n, k int, a, b, c []float32) {
 	checkLen("GemmNN a", len(a), m*k)
 	checkLen("GemmNN b", len(b), k*n)
 	checkLen("GemmNN c", len(c), m*n)
-	if useSIMD && n >= 16 {
-		for i := 0; i < m; i++ {
-			for p := 0; p < k; p++ {
-				if x := a[i*k+p]; x != 0 {
-					axpyAVX2(x, &b[p*n], &c[i*n], n)
-				}
-			}
-		}
+	if useSIMD && n >= 8 {
+		gemmBlocked(m, n, k, a, k, 1, b, n, c, n)
 		return
 	}
 	for i := 0; i < m; i++ {
@@ -127,20 +125,29 @@ func GemmNN(m, n, k int, a, b, c []float32) {
 }
 
 // GemmTN computes C += Aᵀ·B with A (K, M), B (K, N), C (M, N): the weight
-// gradient of a layer, Σ over positions of dout ⊗ input. It panics on short
-// slices.
+// gradient of a layer, Σ over positions of dout ⊗ input; with AVX2 and
+// N ≥ 8 by the register-blocked micro-kernels. It panics on short slices.
 func GemmTN(m, n, k int, a, b, c []float32) {
 	checkLen("GemmTN a", len(a), k*m)
 	checkLen("GemmTN b", len(b), k*n)
 	checkLen("GemmTN c", len(c), m*n)
-	if useSIMD && n >= 16 {
-		for p := 0; p < k; p++ {
-			for i := 0; i < m; i++ {
-				if x := a[p*m+i]; x != 0 {
-					axpyAVX2(x, &b[p*n], &c[i*n], n)
-				}
+	if useSIMD && n%8 != 0 && m%8 == 0 && m*n <= tnScratch {
+		// a narrow C (the weight gradient of a first convolution, N = 9):
+		// compute Cᵀ = Bᵀ·A, whose rows are full 8-wide panels, and add it
+		// transposed.
+		var buf [tnScratch]float32
+		ct := buf[:n*m]
+		gemmBlocked(n, m, k, b, 1, n, a, m, ct, m)
+		for i := 0; i < m; i++ {
+			ci := c[i*n : (i+1)*n]
+			for j := range ci {
+				ci[j] += ct[j*m+i]
 			}
 		}
+		return
+	}
+	if useSIMD && n >= 8 {
+		gemmBlocked(m, n, k, a, 1, m, b, n, c, n)
 		return
 	}
 	p := 0

@@ -22,3 +22,51 @@ func chanAffineAVX2(dst, src, scale, shift *float32, rows, c int, lo, hi float32
 func chanDotAVX2(a, b, mu *float32, rows, c int, sa, sab *float64) { panic("kernels: no SIMD path") }
 
 func chanLinearAVX2(dst, gr, x, a, mu, b, k *float32, rows, c int) { panic("kernels: no SIMD path") }
+
+func gemm1x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+	panic("kernels: no SIMD path")
+}
+
+func gemm2x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+	panic("kernels: no SIMD path")
+}
+
+func gemm3x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+	panic("kernels: no SIMD path")
+}
+
+func gemm4x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+	panic("kernels: no SIMD path")
+}
+
+func gemm5x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+	panic("kernels: no SIMD path")
+}
+
+func gemm6x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+	panic("kernels: no SIMD path")
+}
+
+func gemm1x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+	panic("kernels: no SIMD path")
+}
+
+func gemm2x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+	panic("kernels: no SIMD path")
+}
+
+func gemm3x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+	panic("kernels: no SIMD path")
+}
+
+func gemm4x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+	panic("kernels: no SIMD path")
+}
+
+func gemm5x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+	panic("kernels: no SIMD path")
+}
+
+func gemm6x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+	panic("kernels: no SIMD path")
+}

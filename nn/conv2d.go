@@ -104,6 +104,7 @@ type Conv2D struct {
 	wT         []float32   // (KH·KW·InC, OutC) transposed weights, refreshed by forward
 	cols       [][]float32 // per shard (OH·OW, KH·KW·InC) im2col workspace, sized by plan
 	dcols      [][]float32 // per shard, same shape, backward only
+	scratch    [][]float32 // per shard (KH·KW·InC, OutC), ConvWeightGrad's workspace
 	grads      shardGrads
 	// set by forward/backward for runShard
 	x, out, dx, dout []float32
@@ -182,10 +183,11 @@ func (l *Conv2D) bind(data, grad, _ [][]float32) {
 func (l *Conv2D) plan(n int) {
 	k := shardCount(n)
 	if !l.direct && len(l.cols) < k {
-		l.cols, l.dcols = make([][]float32, k), make([][]float32, k)
+		l.cols, l.dcols, l.scratch = make([][]float32, k), make([][]float32, k), make([][]float32, k)
 		for s := range l.cols {
 			l.cols[s] = make([]float32, l.g.ColSize())
 			l.dcols[s] = make([]float32, l.g.ColSize())
+			l.scratch[s] = make([]float32, len(l.Weight))
 		}
 	}
 	l.grads.plan(k, len(l.Weight), len(l.Bias))
@@ -232,9 +234,7 @@ func (l *Conv2D) runShard(phase, s, lo, hi int) {
 		xs := l.x[lo*inSize : hi*inSize]
 		switch phase {
 		case phaseForward:
-			os := l.out[lo*outSize : hi*outSize]
-			l.initOut(os, rows)
-			kernels.GemmNN(rows, oc, k, xs, l.wT, os)
+			l.product(l.out[lo*outSize:hi*outSize], xs, rows)
 		case phaseBackward:
 			ds := l.dout[lo*outSize : hi*outSize]
 			kernels.GemmTN(oc, k, rows, ds, xs, l.grads.w[s])
@@ -247,39 +247,40 @@ func (l *Conv2D) runShard(phase, s, lo, hi int) {
 	}
 	for i := lo; i < hi; i++ {
 		xi := l.x[i*inSize : (i+1)*inSize]
-		cols := l.cols[s]
-		kernels.Im2col(g, xi, cols)
 		switch phase {
 		case phaseForward:
 			oi := l.out[i*outSize : (i+1)*outSize]
-			l.initOut(oi, pos)
-			kernels.GemmNN(pos, oc, k, cols, l.wT, oi)
+			if l.Bias != nil {
+				for q := 0; q < pos; q++ {
+					copy(oi[q*oc:(q+1)*oc], l.Bias)
+				}
+			}
+			kernels.ConvForward(g, oc, xi, l.wT, oi, l.cols[s], l.Bias != nil)
 		case phaseBackward:
 			di := l.dout[i*outSize : (i+1)*outSize]
-			// out = cols·Wᵀ ⇒ dW += doutᵀ·cols, dcols = dout·W
-			kernels.GemmTN(oc, k, pos, di, cols, l.grads.w[s])
+			// out = patches·Wᵀ ⇒ dW += doutᵀ·patches, dpatches = dout·W
+			kernels.ConvWeightGrad(g, oc, xi, di, l.grads.w[s], l.cols[s], l.scratch[s])
 			l.biasGrad(s, di, pos)
 			if l.dx != nil {
 				dc := l.dcols[s]
-				clear(dc)
-				kernels.GemmNN(pos, k, oc, di, l.Weight, dc)
+				kernels.GemmNNSet(pos, k, oc, di, l.Weight, dc)
 				kernels.Col2im(g, dc, l.dx[i*inSize:(i+1)*inSize])
 			}
 		}
 	}
 }
 
-// initOut sets rows output rows to the bias (or zero) before the product
-// adds to them.
-func (l *Conv2D) initOut(out []float32, rows int) {
-	oc := l.cfg.Filters
+// product sets out (rows, OutC) = cols (rows, K) · Wᵀ + Bias.
+func (l *Conv2D) product(out, cols []float32, rows int) {
+	oc, k := l.cfg.Filters, l.g.KH*l.g.KW*l.g.C
 	if l.Bias == nil {
-		clear(out[:rows*oc])
+		kernels.GemmNNSet(rows, oc, k, cols, l.wT, out)
 		return
 	}
 	for q := 0; q < rows; q++ {
 		copy(out[q*oc:(q+1)*oc], l.Bias)
 	}
+	kernels.GemmNN(rows, oc, k, cols, l.wT, out)
 }
 
 // biasGrad adds the column sums of dout (rows, OutC) to shard s's bias

@@ -28,10 +28,12 @@ func TestGemmAgainstGonum(t *testing.T) {
 					trans blas.Transpose
 					a     []float32
 					lda   int
+					beta  float32
 					run   func(c []float32)
 				}{
-					{"NN", blas.NoTrans, a, k, func(c []float32) { GemmNN(m, n, k, a, b, c) }},
-					{"TN", blas.Trans, at, m, func(c []float32) { GemmTN(m, n, k, at, b, c) }},
+					{"NN", blas.NoTrans, a, k, 1, func(c []float32) { GemmNN(m, n, k, a, b, c) }},
+					{"NNSet", blas.NoTrans, a, k, 0, func(c []float32) { GemmNNSet(m, n, k, a, b, c) }},
+					{"TN", blas.Trans, at, m, 1, func(c []float32) { GemmTN(m, n, k, at, b, c) }},
 				} {
 					got := append([]float32(nil), c0...)
 					tc.run(got)
@@ -42,7 +44,7 @@ func TestGemmAgainstGonum(t *testing.T) {
 					}
 					blas32.Gemm(tc.trans, blas.NoTrans, 1,
 						blas32.General{Rows: ar, Cols: ac, Stride: tc.lda, Data: tc.a},
-						blas32.General{Rows: k, Cols: n, Stride: n, Data: b}, 1, want)
+						blas32.General{Rows: k, Cols: n, Stride: n, Data: b}, tc.beta, want)
 					for i := range got {
 						if !near(got[i], float64(want.Data[i])) {
 							t.Fatalf("Gemm%s %dx%dx%d: [%d] = %g, gonum %g", tc.name, m, n, k, i, got[i], want.Data[i])

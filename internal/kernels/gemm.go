@@ -95,7 +95,7 @@ func GemmNN(m, n, k int, a, b, c []float32) {
 	checkLen("GemmNN b", len(b), k*n)
 	checkLen("GemmNN c", len(c), m*n)
 	if useSIMD && n >= 8 {
-		gemmBlocked(m, n, k, a, k, 1, b, n, c, n)
+		gemmBlocked(m, n, k, a, k, 1, b, n, c, n, true)
 		return
 	}
 	for i := 0; i < m; i++ {
@@ -124,6 +124,20 @@ func GemmNN(m, n, k int, a, b, c []float32) {
 	}
 }
 
+// GemmNNSet computes C = A·B with the shapes of [GemmNN], overwriting C
+// (with AVX2 without reading it first). It panics on short slices.
+func GemmNNSet(m, n, k int, a, b, c []float32) {
+	checkLen("GemmNNSet a", len(a), m*k)
+	checkLen("GemmNNSet b", len(b), k*n)
+	checkLen("GemmNNSet c", len(c), m*n)
+	if useSIMD && n >= 8 {
+		gemmBlocked(m, n, k, a, k, 1, b, n, c, n, false)
+		return
+	}
+	clear(c[:m*n])
+	GemmNN(m, n, k, a, b, c)
+}
+
 // GemmTN computes C += Aᵀ·B with A (K, M), B (K, N), C (M, N): the weight
 // gradient of a layer, Σ over positions of dout ⊗ input; with AVX2 and
 // N ≥ 8 by the register-blocked micro-kernels. It panics on short slices.
@@ -137,7 +151,7 @@ func GemmTN(m, n, k int, a, b, c []float32) {
 		// transposed.
 		var buf [tnScratch]float32
 		ct := buf[:n*m]
-		gemmBlocked(n, m, k, b, 1, n, a, m, ct, m)
+		gemmBlocked(n, m, k, b, 1, n, a, m, ct, m, false)
 		for i := 0; i < m; i++ {
 			ci := c[i*n : (i+1)*n]
 			for j := range ci {
@@ -147,7 +161,7 @@ func GemmTN(m, n, k int, a, b, c []float32) {
 		return
 	}
 	if useSIMD && n >= 8 {
-		gemmBlocked(m, n, k, a, 1, m, b, n, c, n)
+		gemmBlocked(m, n, k, a, 1, m, b, n, c, n, true)
 		return
 	}
 	p := 0

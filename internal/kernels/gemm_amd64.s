@@ -2,8 +2,8 @@
 
 #include "textflag.h"
 
-// func gemm1x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm1x16(SB), NOSPLIT, $0-64
+// func gemm1x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
+TEXT ·gemm1x16(SB), NOSPLIT, $0-72
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ ars+16(FP), R8
@@ -31,15 +31,23 @@ gemm1x16loop:
 	DECQ CX
 	JNZ gemm1x16loop
 gemm1x16store:
+	MOVQ add+64(FP), AX
+	TESTQ AX, AX
+	JE gemm1x16set
 	VADDPS (DX), Y0, Y0
 	VMOVUPS Y0, (DX)
 	VADDPS 32(DX), Y1, Y1
 	VMOVUPS Y1, 32(DX)
 	VZEROUPPER
 	RET
+gemm1x16set:
+	VMOVUPS Y0, (DX)
+	VMOVUPS Y1, 32(DX)
+	VZEROUPPER
+	RET
 
-// func gemm2x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm2x16(SB), NOSPLIT, $0-64
+// func gemm2x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
+TEXT ·gemm2x16(SB), NOSPLIT, $0-72
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ ars+16(FP), R8
@@ -72,6 +80,9 @@ gemm2x16loop:
 	DECQ CX
 	JNZ gemm2x16loop
 gemm2x16store:
+	MOVQ add+64(FP), AX
+	TESTQ AX, AX
+	JE gemm2x16set
 	VADDPS (DX), Y0, Y0
 	VMOVUPS Y0, (DX)
 	VADDPS 32(DX), Y1, Y1
@@ -83,9 +94,17 @@ gemm2x16store:
 	VMOVUPS Y3, 32(DX)
 	VZEROUPPER
 	RET
+gemm2x16set:
+	VMOVUPS Y0, (DX)
+	VMOVUPS Y1, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y2, (DX)
+	VMOVUPS Y3, 32(DX)
+	VZEROUPPER
+	RET
 
-// func gemm3x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm3x16(SB), NOSPLIT, $0-64
+// func gemm3x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
+TEXT ·gemm3x16(SB), NOSPLIT, $0-72
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ ars+16(FP), R8
@@ -123,6 +142,9 @@ gemm3x16loop:
 	DECQ CX
 	JNZ gemm3x16loop
 gemm3x16store:
+	MOVQ add+64(FP), AX
+	TESTQ AX, AX
+	JE gemm3x16set
 	VADDPS (DX), Y0, Y0
 	VMOVUPS Y0, (DX)
 	VADDPS 32(DX), Y1, Y1
@@ -139,9 +161,20 @@ gemm3x16store:
 	VMOVUPS Y5, 32(DX)
 	VZEROUPPER
 	RET
+gemm3x16set:
+	VMOVUPS Y0, (DX)
+	VMOVUPS Y1, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y2, (DX)
+	VMOVUPS Y3, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y4, (DX)
+	VMOVUPS Y5, 32(DX)
+	VZEROUPPER
+	RET
 
-// func gemm4x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm4x16(SB), NOSPLIT, $0-64
+// func gemm4x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
+TEXT ·gemm4x16(SB), NOSPLIT, $0-72
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ ars+16(FP), R8
@@ -187,6 +220,9 @@ gemm4x16loop:
 	DECQ CX
 	JNZ gemm4x16loop
 gemm4x16store:
+	MOVQ add+64(FP), AX
+	TESTQ AX, AX
+	JE gemm4x16set
 	VADDPS (DX), Y0, Y0
 	VMOVUPS Y0, (DX)
 	VADDPS 32(DX), Y1, Y1
@@ -208,9 +244,23 @@ gemm4x16store:
 	VMOVUPS Y7, 32(DX)
 	VZEROUPPER
 	RET
+gemm4x16set:
+	VMOVUPS Y0, (DX)
+	VMOVUPS Y1, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y2, (DX)
+	VMOVUPS Y3, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y4, (DX)
+	VMOVUPS Y5, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y6, (DX)
+	VMOVUPS Y7, 32(DX)
+	VZEROUPPER
+	RET
 
-// func gemm5x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm5x16(SB), NOSPLIT, $0-64
+// func gemm5x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
+TEXT ·gemm5x16(SB), NOSPLIT, $0-72
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ ars+16(FP), R8
@@ -261,6 +311,9 @@ gemm5x16loop:
 	DECQ CX
 	JNZ gemm5x16loop
 gemm5x16store:
+	MOVQ add+64(FP), AX
+	TESTQ AX, AX
+	JE gemm5x16set
 	VADDPS (DX), Y0, Y0
 	VMOVUPS Y0, (DX)
 	VADDPS 32(DX), Y1, Y1
@@ -287,9 +340,26 @@ gemm5x16store:
 	VMOVUPS Y9, 32(DX)
 	VZEROUPPER
 	RET
+gemm5x16set:
+	VMOVUPS Y0, (DX)
+	VMOVUPS Y1, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y2, (DX)
+	VMOVUPS Y3, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y4, (DX)
+	VMOVUPS Y5, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y6, (DX)
+	VMOVUPS Y7, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y8, (DX)
+	VMOVUPS Y9, 32(DX)
+	VZEROUPPER
+	RET
 
-// func gemm6x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm6x16(SB), NOSPLIT, $0-64
+// func gemm6x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
+TEXT ·gemm6x16(SB), NOSPLIT, $0-72
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ ars+16(FP), R8
@@ -345,6 +415,9 @@ gemm6x16loop:
 	DECQ CX
 	JNZ gemm6x16loop
 gemm6x16store:
+	MOVQ add+64(FP), AX
+	TESTQ AX, AX
+	JE gemm6x16set
 	VADDPS (DX), Y0, Y0
 	VMOVUPS Y0, (DX)
 	VADDPS 32(DX), Y1, Y1
@@ -376,9 +449,29 @@ gemm6x16store:
 	VMOVUPS Y11, 32(DX)
 	VZEROUPPER
 	RET
+gemm6x16set:
+	VMOVUPS Y0, (DX)
+	VMOVUPS Y1, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y2, (DX)
+	VMOVUPS Y3, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y4, (DX)
+	VMOVUPS Y5, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y6, (DX)
+	VMOVUPS Y7, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y8, (DX)
+	VMOVUPS Y9, 32(DX)
+	ADDQ R12, DX
+	VMOVUPS Y10, (DX)
+	VMOVUPS Y11, 32(DX)
+	VZEROUPPER
+	RET
 
-// func gemm1x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm1x8(SB), NOSPLIT, $0-64
+// func gemm1x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
+TEXT ·gemm1x8(SB), NOSPLIT, $0-72
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ ars+16(FP), R8
@@ -403,13 +496,20 @@ gemm1x8loop:
 	DECQ CX
 	JNZ gemm1x8loop
 gemm1x8store:
+	MOVQ add+64(FP), AX
+	TESTQ AX, AX
+	JE gemm1x8set
 	VADDPS (DX), Y0, Y0
 	VMOVUPS Y0, (DX)
 	VZEROUPPER
 	RET
+gemm1x8set:
+	VMOVUPS Y0, (DX)
+	VZEROUPPER
+	RET
 
-// func gemm2x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm2x8(SB), NOSPLIT, $0-64
+// func gemm2x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
+TEXT ·gemm2x8(SB), NOSPLIT, $0-72
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ ars+16(FP), R8
@@ -437,6 +537,9 @@ gemm2x8loop:
 	DECQ CX
 	JNZ gemm2x8loop
 gemm2x8store:
+	MOVQ add+64(FP), AX
+	TESTQ AX, AX
+	JE gemm2x8set
 	VADDPS (DX), Y0, Y0
 	VMOVUPS Y0, (DX)
 	ADDQ R12, DX
@@ -444,9 +547,15 @@ gemm2x8store:
 	VMOVUPS Y1, (DX)
 	VZEROUPPER
 	RET
+gemm2x8set:
+	VMOVUPS Y0, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y1, (DX)
+	VZEROUPPER
+	RET
 
-// func gemm3x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm3x8(SB), NOSPLIT, $0-64
+// func gemm3x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
+TEXT ·gemm3x8(SB), NOSPLIT, $0-72
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ ars+16(FP), R8
@@ -477,6 +586,9 @@ gemm3x8loop:
 	DECQ CX
 	JNZ gemm3x8loop
 gemm3x8store:
+	MOVQ add+64(FP), AX
+	TESTQ AX, AX
+	JE gemm3x8set
 	VADDPS (DX), Y0, Y0
 	VMOVUPS Y0, (DX)
 	ADDQ R12, DX
@@ -487,9 +599,17 @@ gemm3x8store:
 	VMOVUPS Y2, (DX)
 	VZEROUPPER
 	RET
+gemm3x8set:
+	VMOVUPS Y0, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y1, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y2, (DX)
+	VZEROUPPER
+	RET
 
-// func gemm4x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm4x8(SB), NOSPLIT, $0-64
+// func gemm4x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
+TEXT ·gemm4x8(SB), NOSPLIT, $0-72
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ ars+16(FP), R8
@@ -526,6 +646,9 @@ gemm4x8loop:
 	DECQ CX
 	JNZ gemm4x8loop
 gemm4x8store:
+	MOVQ add+64(FP), AX
+	TESTQ AX, AX
+	JE gemm4x8set
 	VADDPS (DX), Y0, Y0
 	VMOVUPS Y0, (DX)
 	ADDQ R12, DX
@@ -539,9 +662,19 @@ gemm4x8store:
 	VMOVUPS Y3, (DX)
 	VZEROUPPER
 	RET
+gemm4x8set:
+	VMOVUPS Y0, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y1, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y2, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y3, (DX)
+	VZEROUPPER
+	RET
 
-// func gemm5x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm5x8(SB), NOSPLIT, $0-64
+// func gemm5x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
+TEXT ·gemm5x8(SB), NOSPLIT, $0-72
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ ars+16(FP), R8
@@ -581,6 +714,9 @@ gemm5x8loop:
 	DECQ CX
 	JNZ gemm5x8loop
 gemm5x8store:
+	MOVQ add+64(FP), AX
+	TESTQ AX, AX
+	JE gemm5x8set
 	VADDPS (DX), Y0, Y0
 	VMOVUPS Y0, (DX)
 	ADDQ R12, DX
@@ -597,9 +733,21 @@ gemm5x8store:
 	VMOVUPS Y4, (DX)
 	VZEROUPPER
 	RET
+gemm5x8set:
+	VMOVUPS Y0, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y1, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y2, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y3, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y4, (DX)
+	VZEROUPPER
+	RET
 
-// func gemm6x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm6x8(SB), NOSPLIT, $0-64
+// func gemm6x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
+TEXT ·gemm6x8(SB), NOSPLIT, $0-72
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ ars+16(FP), R8
@@ -642,6 +790,9 @@ gemm6x8loop:
 	DECQ CX
 	JNZ gemm6x8loop
 gemm6x8store:
+	MOVQ add+64(FP), AX
+	TESTQ AX, AX
+	JE gemm6x8set
 	VADDPS (DX), Y0, Y0
 	VMOVUPS Y0, (DX)
 	ADDQ R12, DX
@@ -658,6 +809,20 @@ gemm6x8store:
 	VMOVUPS Y4, (DX)
 	ADDQ R12, DX
 	VADDPS (DX), Y5, Y5
+	VMOVUPS Y5, (DX)
+	VZEROUPPER
+	RET
+gemm6x8set:
+	VMOVUPS Y0, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y1, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y2, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y3, (DX)
+	ADDQ R12, DX
+	VMOVUPS Y4, (DX)
+	ADDQ R12, DX
 	VMOVUPS Y5, (DX)
 	VZEROUPPER
 	RET

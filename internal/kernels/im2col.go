@@ -21,6 +21,10 @@ func (g ConvGeom) ColSize() int { return g.OH * g.OW * g.KH * g.KW * g.C }
 func Im2col(g ConvGeom, x, cols []float32) {
 	checkLen("Im2col x", len(x), g.H*g.W*g.C)
 	checkLen("Im2col cols", len(cols), g.ColSize())
+	if g.C == 1 && g.KW == 3 {
+		im2col1x3(g, x, cols)
+		return
+	}
 	rowLen := g.KH * g.KW * g.C
 	for oh := 0; oh < g.OH; oh++ {
 		for ow := 0; ow < g.OW; ow++ {
@@ -45,6 +49,41 @@ func Im2col(g ConvGeom, x, cols []float32) {
 					} else {
 						copy(dst, x[(ih*g.W+iw)*g.C:(ih*g.W+iw+1)*g.C])
 					}
+				}
+			}
+		}
+	}
+}
+
+// im2col1x3 is Im2col for one input channel and kernels three wide (a
+// first convolution on a spectrogram), where the general loop would spend
+// a call to memmove on every three values.
+func im2col1x3(g ConvGeom, x, cols []float32) {
+	k := g.KH * 3
+	for oh := 0; oh < g.OH; oh++ {
+		for ow := 0; ow < g.OW; ow++ {
+			row := cols[(oh*g.OW+ow)*k : (oh*g.OW+ow+1)*k]
+			iw0 := ow*g.SW - g.PadLeft
+			inside := iw0 >= 0 && iw0+3 <= g.W
+			for kh := 0; kh < g.KH; kh++ {
+				ih := oh*g.SH - g.PadTop + kh
+				seg := row[kh*3 : kh*3+3 : kh*3+3]
+				if ih < 0 || ih >= g.H {
+					seg[0], seg[1], seg[2] = 0, 0, 0
+					continue
+				}
+				xr := x[ih*g.W : (ih+1)*g.W]
+				if inside {
+					src := xr[iw0 : iw0+3 : iw0+3]
+					seg[0], seg[1], seg[2] = src[0], src[1], src[2]
+					continue
+				}
+				for kw := range 3 {
+					v := float32(0)
+					if iw := iw0 + kw; iw >= 0 && iw < g.W {
+						v = xr[iw]
+					}
+					seg[kw] = v
 				}
 			}
 		}

@@ -44,40 +44,49 @@ func chanDotAVX2(a, b, mu *float32, rows, c int, sa, sab *float64)
 func chanLinearAVX2(dst, gr, x, a, mu, b, k *float32, rows, c int)
 
 // Register-blocked micro-kernels (gemm_amd64.s, written by gen/gemm_asm.py):
-// gemmRxN adds an R×N block of Σ_p a[r·ars+p·aps]·b[p·ldb+j] to c[r·ldc+j].
+// gemmRxN adds an R×N block of Σ_p a[r·ars+p·aps]·b[p·ldb+j] to c[r·ldc+j]
+// (add != 0) or stores it there (add == 0).
 
 //go:noescape
-func gemm1x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
+func gemm1x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
 
 //go:noescape
-func gemm2x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
+func gemm2x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
 
 //go:noescape
-func gemm3x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
+func gemm3x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
 
 //go:noescape
-func gemm4x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
+func gemm4x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
 
 //go:noescape
-func gemm5x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
+func gemm5x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
 
 //go:noescape
-func gemm6x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
+func gemm6x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
 
 //go:noescape
-func gemm1x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
+func gemm1x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
 
 //go:noescape
-func gemm2x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
+func gemm2x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
 
 //go:noescape
-func gemm3x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
+func gemm3x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
 
 //go:noescape
-func gemm4x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
+func gemm4x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
 
 //go:noescape
-func gemm5x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
+func gemm5x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
 
 //go:noescape
-func gemm6x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)
+func gemm6x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)
+
+// Depthwise row kernels (dw_amd64.s).
+
+//go:noescape
+func dwFwdRowAVX2(out, x, w *float32, n, c, xstep int, xoffs, woffs *int, ntaps int)
+
+//go:noescape
+func dwBackRowAVX2(d, x, w, dx, dw *float32, n, c, xstep int, xoffs, woffs *int, ntaps int)

@@ -23,50 +23,58 @@ func chanDotAVX2(a, b, mu *float32, rows, c int, sa, sab *float64) { panic("kern
 
 func chanLinearAVX2(dst, gr, x, a, mu, b, k *float32, rows, c int) { panic("kernels: no SIMD path") }
 
-func gemm1x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+func gemm1x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int) {
 	panic("kernels: no SIMD path")
 }
 
-func gemm2x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+func gemm2x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int) {
 	panic("kernels: no SIMD path")
 }
 
-func gemm3x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+func gemm3x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int) {
 	panic("kernels: no SIMD path")
 }
 
-func gemm4x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+func gemm4x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int) {
 	panic("kernels: no SIMD path")
 }
 
-func gemm5x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+func gemm5x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int) {
 	panic("kernels: no SIMD path")
 }
 
-func gemm6x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+func gemm6x16(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int) {
 	panic("kernels: no SIMD path")
 }
 
-func gemm1x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+func gemm1x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int) {
 	panic("kernels: no SIMD path")
 }
 
-func gemm2x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+func gemm2x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int) {
 	panic("kernels: no SIMD path")
 }
 
-func gemm3x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+func gemm3x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int) {
 	panic("kernels: no SIMD path")
 }
 
-func gemm4x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+func gemm4x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int) {
 	panic("kernels: no SIMD path")
 }
 
-func gemm5x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+func gemm5x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int) {
 	panic("kernels: no SIMD path")
 }
 
-func gemm6x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int) {
+func gemm6x8(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int) {
+	panic("kernels: no SIMD path")
+}
+
+func dwFwdRowAVX2(out, x, w *float32, n, c, xstep int, xoffs, woffs *int, ntaps int) {
+	panic("kernels: no SIMD path")
+}
+
+func dwBackRowAVX2(d, x, w, dx, dw *float32, n, c, xstep int, xoffs, woffs *int, ntaps int) {
 	panic("kernels: no SIMD path")
 }

@@ -1,10 +1,11 @@
 #!/usr/bin/env python3
 """Writes ../gemm_amd64.s: the register-blocked AVX2/FMA micro-kernels.
 
-gemm{MR}x{NR}(k, a, ars, aps, b, ldb, c, ldc) computes, for r < MR and
-j < NR (NR = 8 or 16, one or two ymm registers per row),
-    c[r*ldc + j] += sum_{p<k} a[r*ars + p*aps] * b[p*ldb + j]
-keeping the MR x NR block of sums in registers. Strides are in float32
+gemm{MR}x{NR}(k, a, ars, aps, b, ldb, c, ldc, add) computes, for r < MR
+and j < NR (NR = 8 or 16, one or two ymm registers per row),
+    s = sum_{p<k} a[r*ars + p*aps] * b[p*ldb + j]
+keeping the MR x NR block of sums in registers, then c[r*ldc + j] += s
+(add != 0) or c[r*ldc + j] = s (add == 0). Strides are in float32
 elements. Run from this directory: python3 gemm_asm.py
 """
 
@@ -26,8 +27,8 @@ def kernel(mr, nr):
     name = f"gemm{mr}x{nr}"
     L = []
     w = L.append
-    w(f"\n// func {name}(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int)")
-    w(f"TEXT ·{name}(SB), NOSPLIT, $0-64")
+    w(f"\n// func {name}(k int, a *float32, ars, aps int, b *float32, ldb int, c *float32, ldc int, add int)")
+    w(f"TEXT ·{name}(SB), NOSPLIT, $0-72")
     w("\tMOVQ k+0(FP), CX")
     w("\tMOVQ a+8(FP), SI")
     w("\tMOVQ ars+16(FP), R8")
@@ -63,10 +64,22 @@ def kernel(mr, nr):
     w("\tDECQ CX")
     w(f"\tJNZ {name}loop")
     w(f"{name}store:")
+    w("\tMOVQ add+64(FP), AX")
+    w("\tTESTQ AX, AX")
+    w(f"\tJE {name}set")
     for r in range(mr):
         for v in range(nv):
             off = f"{32*v}(DX)" if v else "(DX)"
             w(f"\tVADDPS {off}, {acc(r,v)}, {acc(r,v)}")
+            w(f"\tVMOVUPS {acc(r,v)}, {off}")
+        if r < mr - 1:
+            w("\tADDQ R12, DX")
+    w("\tVZEROUPPER")
+    w("\tRET")
+    w(f"{name}set:")
+    for r in range(mr):
+        for v in range(nv):
+            off = f"{32*v}(DX)" if v else "(DX)"
             w(f"\tVMOVUPS {acc(r,v)}, {off}")
         if r < mr - 1:
             w("\tADDQ R12, DX")

@@ -16,8 +16,8 @@
 // channel by default, per tensor as an option. Bias: int32 with scale
 // input_scale·weight_scale[c]. Each output channel's real multiplier
 // M = input_scale·weight_scale[c]/output_scale is a 32-bit mantissa and a
-// shift ([QuantizeMultiplier]); requantisation is
-// RoundingDivideByPOT(SaturatingRoundingDoublingHighMul(acc, m0), shift)
+// shift ([EncodeRescale]); requantisation is
+// ShiftRightRound(MulQ31Round(acc, m0), shift)
 // + output_zero_point, saturated to the fused activation's clamp (ReLU:
 // [zp, 127], ReLU6: [zp, q(6)]). Rounding of real values to integers
 // (weights, biases, activations, the mantissa) is half away from zero

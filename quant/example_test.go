@@ -33,9 +33,9 @@ func ExampleQuantize() {
 
 // Represent a real rescale factor as a fixed-point multiplier and apply it
 // to an accumulator the way an integer runtime does.
-func ExampleQuantizeMultiplier() {
-	m0, shift, _ := quant.QuantizeMultiplier(0.01) // 0.02·0.05/0.1
-	fmt.Println(m0, shift, quant.MultiplyByQuantizedMultiplier(12345, m0, shift))
+func ExampleEncodeRescale() {
+	m0, shift, _ := quant.EncodeRescale(0.01) // 0.02·0.05/0.1
+	fmt.Println(m0, shift, quant.Rescale(12345, m0, shift))
 	// Output:
 	// 1374389535 6 123
 }

@@ -202,9 +202,9 @@ func TestStreamMatchesBatch(t *testing.T) {
 	}
 	variants := map[string]func(*Config){
 		"default":         func(*Config) {},
-		"center":          func(c *Config) { c.Center = true },
+		"pad ends":        func(c *Config) { c.PadEnds = true },
 		"hop > window":    func(c *Config) { c.WindowSamples, c.FFTSize, c.HopSamples = 256, 256, 300 },
-		"odd window, ln":  func(c *Config) { c.WindowSamples, c.HopSamples, c.Center, c.Log = 401, 160, true, LogNatural },
+		"odd window, ln":  func(c *Config) { c.WindowSamples, c.HopSamples, c.PadEnds, c.Log = 401, 160, true, LogNatural },
 		"slaney, hamming": func(c *Config) { c.MelScale, c.Window, c.MelNorm = MelSlaney, WindowHamming, MelNormArea },
 	}
 	for name, mod := range variants {

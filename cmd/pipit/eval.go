@@ -152,14 +152,14 @@ confusion matrix is also drawn as a PNG.`,
 			png = model + ".confusion.png"
 		}
 		stderr := cmd.ErrOrStderr()
-		b := newBar(stderr, "load")
+		b := newTask(stderr, "load")
 		set, err := datasets.Load(c, ids, datasets.Options{FrontEnd: m.info.FrontEnd, Window: m.info.Window, Cache: &datasets.Cache{Dir: cacheDir},
-			SkipBad: skipBad, Warn: func(err error) { fmt.Fprintf(stderr, "\rskipping: %v\x1b[K\n", err) },
-			Progress: func(d, t int) { b.update(d, t, "clips") }})
+			SkipBad: skipBad, Warn: func(err error) { fmt.Fprintf(stderr, "skipping: %v\n", err) },
+			Progress: func(d, t int) { b.step(d, t, "clips", "") }})
 		if err != nil {
 			return err
 		}
-		b.done(fmt.Sprintf("%d clips → %d windows", len(set.Clips), set.Len()))
+		b.finish(fmt.Sprintf("%d clips → %d windows", len(set.Clips), set.Len()))
 		set.Stats = m.info.Stats
 		rep, err := evaluateSet(m.predictor(), set, m.info.Classes)
 		if err != nil {

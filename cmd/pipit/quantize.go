@@ -145,8 +145,8 @@ func runQuantize(model, calib, group, cacheDir, out string, calibFold int, cfg q
 	for i := range labels {
 		labels[i] = calSet.Sample(i, 0, x[i*in:(i+1)*in])
 	}
-	b := newBar(stderr, "calibrate")
-	b.update(0, 1, fmt.Sprintf("%d windows, method %s", calSet.Len(), cfg.Method))
+	b := newTask(stderr, "calibrate")
+	b.show(fmt.Sprintf("%d windows, method %s …", calSet.Len(), cfg.Method))
 	q, qrep, err := quant.Quantize(m.net, x, len(labels), labels, cfg)
 	if err != nil {
 		return nil, err
@@ -154,7 +154,7 @@ func runQuantize(model, calib, group, cacheDir, out string, calibFold int, cfg q
 	if err := q.CheckOverflow(); err != nil {
 		return nil, err
 	}
-	b.done("method " + qrep.Method)
+	b.finish(fmt.Sprintf("%d windows, method %s", calSet.Len(), qrep.Method))
 	ptq := q
 	if qat.epochs > 0 {
 		q, err = fineTuneQAT(m, c, opts, cfg.Scheme, qat, stderr)
@@ -222,16 +222,16 @@ func fineTuneQAT(m *loadedModel, c *datasets.Corpus, opts datasets.Options, s qu
 		return nil, err
 	}
 	qat.Attach(tr)
-	var b *bar
+	var b *task
 	_, err = nn.Fit(tr, nn.FitConfig{Epochs: o.epochs, Batch: 32, Seed: 1}, trainSet, valSet,
 		func(ep, st, n int, loss, acc float64, seen int, secs float64) {
 			if st == 1 {
-				b = newBar(stderr, fmt.Sprintf("QAT epoch %d/%d", ep, o.epochs))
+				b = newTask(stderr, fmt.Sprintf("QAT epoch %d/%d", ep, o.epochs))
 			}
-			b.update(st, n, fmt.Sprintf("loss %.4f acc %.3f", loss, acc))
+			b.step(st, n, "batches", fmt.Sprintf("train loss %.4f, %.1f %% of windows right", loss, 100*acc))
 		},
 		func(e nn.EpochStats) error {
-			b.done(fmt.Sprintf("loss %.4f acc %.3f | val acc %.3f", e.Loss, e.Accuracy, e.ValAcc))
+			b.finish(fmt.Sprintf("train loss %.4f, %.1f %% of windows right; val fold %.1f %% right", e.Loss, 100*e.Accuracy, 100*e.ValAcc))
 			return nil
 		})
 	if err != nil {

@@ -54,7 +54,7 @@ func FuzzParseCheckpoint(f *testing.F) {
 	f.Add([]byte("PIPITCKP\x01\x00\x00\x00\xff\xff\xff\xff"))
 	f.Add([]byte{})
 	f.Fuzz(func(t *testing.T, data []byte) {
-		ck, err := ParseCheckpoint("fuzz.ckpt", data)
+		ck, err := ParseCheckpoint("fuzz.pnet", data)
 		if err != nil {
 			return
 		}

@@ -61,7 +61,7 @@ pipit eval.`,
 	f.IntVar(&calibFold, "calib-fold", -2, "calibration fold (default: the model's validation fold; -1: every fold but the test fold)")
 	f.StringVar(&method, "method", quant.MethodAuto, "range observer: minmax, percentile, mse or auto (best on the calibration set)")
 	f.StringVar(&scheme, "scheme", quant.PerChannel, "weights: per-channel, per-tensor, or pow2 (per-channel with power-of-two scales)")
-	f.StringVar(&out, "out", "", "quantised model to write (required)")
+	f.StringVar(&out, "out", "", "int8 model file to write, by convention NAME.pq8 (required)")
 	f.StringVar(&group, "group", "", "manifest column naming the source recording")
 	f.StringVar(&cacheDir, "cache", defaultCacheDir(), "feature cache directory (empty: no cache)")
 	f.IntVar(&qatEpochs, "qat-epochs", 0, "quantisation-aware fine-tuning epochs on the training folds after calibration (0: post-training quantisation only)")

@@ -52,7 +52,7 @@ func addTrainFlags(cmd *cobra.Command, o *trainOptions) {
 	f := cmd.Flags()
 	f.StringVar(&o.data, "data", "", "manifest CSV or folder with one sub-folder per class (required)")
 	f.StringVar(&o.arch, "arch", "separable", "built-in architecture ("+strings.Join(nn.ArchNames(), ", ")+") or layer-spec file")
-	f.StringVar(&o.out, "out", "", "model file to write (required)")
+	f.StringVar(&o.out, "out", "", "float model file to write, by convention NAME.pnet (required)")
 	f.IntVar(&o.testFold, "test-fold", 0, "fold held out for testing")
 	f.IntVar(&o.valFold, "val-fold", -1, "fold for validation and early stopping (default: the fold after the test fold)")
 	f.IntVar(&o.folds, "folds", 5, "folds to assign when the corpus has none")

@@ -260,9 +260,9 @@ func printEval(w io.Writer, r *evalReport) {
 	}{{"windows", r.Windows}, {"clips, mean probability", r.ClipsMean}, {"clips, majority vote", r.ClipsVote}} {
 		fmt.Fprintf(w, "%-24s accuracy %.3f  balanced accuracy %.3f  macro F1 %.3f\n", lv.name, lv.l.Accuracy, lv.l.BalancedAccuracy, lv.l.MacroF1)
 	}
-	fmt.Fprintf(w, "\nper class (windows):\n%-18s %9s %9s %9s %8s\n", "class", "precision", "recall", "F1", "support")
+	fmt.Fprintf(w, "\nby class (windows):\n%-18s %8s %7s %9s %6s\n", "class", "windows", "recall", "precision", "F1")
 	for k, pc := range r.Windows.PerClass {
-		fmt.Fprintf(w, "%-18s %9.3f %9.3f %9.3f %8d\n", r.Classes[k], pc.Precision, pc.Recall, pc.F1, pc.Support)
+		fmt.Fprintf(w, "%-18s %8d %7.3f %9.3f %6.3f\n", r.Classes[k], pc.Labelled, pc.Recall, pc.Precision, pc.F1)
 	}
 	cm := &nn.Confusion{Counts: r.Windows.Confusion}
 	fmt.Fprintf(w, "\nconfusion matrix (windows; rows true, columns predicted):\n%s\nconfusion PNG: %s\n", cm.Text(r.Classes), r.PNG)

@@ -79,7 +79,7 @@ func geometry(in Shape, kh, kw, sh, sw int, p Padding) (kernels.ConvGeom, error)
 
 // Conv2DConfig configures a [Conv2D]. Zero strides mean 1.
 type Conv2DConfig struct {
-	Filters   int // OutC
+	Out       int // output channels OutC (spec: out=N)
 	KH, KW    int // kernel size
 	SH, SW    int // strides
 	Pad       Padding
@@ -120,9 +120,9 @@ func NewConv2D(cfg Conv2DConfig) *Conv2D {
 	return &Conv2D{cfg: cfg}
 }
 
-// NewPointwise returns a 1×1 convolution with filters outputs.
-func NewPointwise(filters int, bias bool) *Conv2D {
-	return NewConv2D(Conv2DConfig{Filters: filters, KH: 1, KW: 1, SH: 1, SW: 1, Pad: Padding{Mode: PadValid}, Bias: bias, Pointwise: true})
+// NewPointwise returns a 1×1 convolution with out output channels.
+func NewPointwise(out int, bias bool) *Conv2D {
+	return NewConv2D(Conv2DConfig{Out: out, KH: 1, KW: 1, SH: 1, SW: 1, Pad: Padding{Mode: PadValid}, Bias: bias, Pointwise: true})
 }
 
 // Kind implements Layer.
@@ -136,9 +136,9 @@ func (l *Conv2D) Kind() string {
 // Spec implements Layer.
 func (l *Conv2D) Spec() string {
 	if l.cfg.Pointwise {
-		return fmt.Sprintf("pointwise filters=%d bias=%v", l.cfg.Filters, l.cfg.Bias)
+		return fmt.Sprintf("pointwise out=%d bias=%v", l.cfg.Out, l.cfg.Bias)
 	}
-	return fmt.Sprintf("conv filters=%d kernel=%dx%d stride=%dx%d %s bias=%v", l.cfg.Filters, l.cfg.KH, l.cfg.KW, l.cfg.SH, l.cfg.SW, l.cfg.Pad.spec(), l.cfg.Bias)
+	return fmt.Sprintf("conv out=%d kernel=%dx%d stride=%dx%d %s bias=%v", l.cfg.Out, l.cfg.KH, l.cfg.KW, l.cfg.SH, l.cfg.SW, l.cfg.Pad.spec(), l.cfg.Bias)
 }
 
 // Config returns the layer's configuration.
@@ -148,8 +148,8 @@ func (l *Conv2D) Config() Conv2DConfig { return l.cfg }
 func (l *Conv2D) Geometry() kernels.ConvGeom { return l.g }
 
 func (l *Conv2D) setup(in Shape) (Shape, error) {
-	if l.cfg.Filters < 1 {
-		return Shape{}, shapeErr("conv: %d filters", l.cfg.Filters)
+	if l.cfg.Out < 1 {
+		return Shape{}, shapeErr("conv: out=%d, want at least 1", l.cfg.Out)
 	}
 	g, err := geometry(in, l.cfg.KH, l.cfg.KW, l.cfg.SH, l.cfg.SW, l.cfg.Pad)
 	if err != nil {
@@ -157,14 +157,14 @@ func (l *Conv2D) setup(in Shape) (Shape, error) {
 	}
 	l.g = g
 	l.direct = g.KH == 1 && g.KW == 1 && g.SH == 1 && g.SW == 1 && g.PadTop == 0 && g.PadLeft == 0
-	return Shape{g.OH, g.OW, l.cfg.Filters}, nil
+	return Shape{g.OH, g.OW, l.cfg.Out}, nil
 }
 
 func (l *Conv2D) params() []ParamSpec {
 	k := l.g.KH * l.g.KW * l.g.C
-	ps := []ParamSpec{{Role: "weight", Shape: []int{l.cfg.Filters, l.g.KH, l.g.KW, l.g.C}, Init: InitHe, FanIn: k, Decay: true}}
+	ps := []ParamSpec{{Role: "weight", Shape: []int{l.cfg.Out, l.g.KH, l.g.KW, l.g.C}, Init: InitHe, FanIn: k, Decay: true}}
 	if l.cfg.Bias {
-		ps = append(ps, ParamSpec{Role: "bias", Shape: []int{l.cfg.Filters}})
+		ps = append(ps, ParamSpec{Role: "bias", Shape: []int{l.cfg.Out}})
 	}
 	return ps
 }
@@ -191,7 +191,7 @@ func (l *Conv2D) plan(n int) {
 }
 
 func (l *Conv2D) macs() int64 {
-	return int64(l.g.OH) * int64(l.g.OW) * int64(l.cfg.Filters) * int64(l.g.KH*l.g.KW*l.g.C)
+	return int64(l.g.OH) * int64(l.g.OW) * int64(l.cfg.Out) * int64(l.g.KH*l.g.KW*l.g.C)
 }
 
 const (
@@ -216,8 +216,8 @@ func (l *Conv2D) backward(p *Pass, dx, dout, x, out []float32, n int) {
 
 func (l *Conv2D) runShard(phase, s, lo, hi int) {
 	g := l.g
-	inSize, outSize := g.H*g.W*g.C, g.OH*g.OW*l.cfg.Filters
-	pos, k, oc := g.OH*g.OW, g.KH*g.KW*g.C, l.cfg.Filters
+	inSize, outSize := g.H*g.W*g.C, g.OH*g.OW*l.cfg.Out
+	pos, k, oc := g.OH*g.OW, g.KH*g.KW*g.C, l.cfg.Out
 	for i := lo; i < hi; i++ {
 		xi := l.x[i*inSize : (i+1)*inSize]
 		cols := xi

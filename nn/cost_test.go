@@ -15,7 +15,7 @@ import (
 func mobileNetSpec(alpha float64) string {
 	ch := func(c int) int { return int(alpha * float64(c)) }
 	var b strings.Builder
-	fmt.Fprintf(&b, "conv filters=%d kernel=3 stride=2 pad=same bias=false\nbatchnorm\nrelu\n", ch(32))
+	fmt.Fprintf(&b, "conv out=%d kernel=3 stride=2 pad=same bias=false\nbatchnorm\nrelu\n", ch(32))
 	blocks := []struct{ stride, out int }{
 		{1, 64}, {2, 128}, {1, 128}, {2, 256}, {1, 256}, {2, 512},
 		{1, 512}, {1, 512}, {1, 512}, {1, 512}, {1, 512},
@@ -23,9 +23,9 @@ func mobileNetSpec(alpha float64) string {
 	}
 	for _, bl := range blocks {
 		fmt.Fprintf(&b, "depthwise kernel=3 stride=%d pad=same bias=false\nbatchnorm\nrelu\n", bl.stride)
-		fmt.Fprintf(&b, "pointwise filters=%d bias=false\nbatchnorm\nrelu\n", ch(bl.out))
+		fmt.Fprintf(&b, "pointwise out=%d bias=false\nbatchnorm\nrelu\n", ch(bl.out))
 	}
-	b.WriteString("globalavgpool\ndense units=1000\n")
+	b.WriteString("globalavgpool\ndense out=1000\n")
 	return b.String()
 }
 
@@ -98,11 +98,11 @@ func TestCostSeparableRatio(t *testing.T) {
 	// 1/N + 1/D_K²; Table 3 (D_K = 3, M = N = 512, D_F = 14): 462,422,016
 	// and 52,283,392 mult-adds exactly (check-values.md §1.4).
 	in := Shape{14, 14, 512}
-	std, err := FromSpec("conv filters=512 kernel=3 pad=same bias=false", in, 1)
+	std, err := FromSpec("conv out=512 kernel=3 pad=same bias=false", in, 1)
 	if err != nil {
 		t.Fatal(err)
 	}
-	sep, err := FromSpec("depthwise kernel=3 pad=same bias=false\npointwise filters=512 bias=false", in, 1)
+	sep, err := FromSpec("depthwise kernel=3 pad=same bias=false\npointwise out=512 bias=false", in, 1)
 	if err != nil {
 		t.Fatal(err)
 	}

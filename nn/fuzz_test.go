@@ -11,8 +11,8 @@ func FuzzParseSpec(f *testing.F) {
 		s, _ := ArchSpec(name, 4)
 		f.Add(s)
 	}
-	f.Add("conv filters=3 kernel=3x3 stride=2 pad=1,1,1,1\nrelu # c\n")
-	f.Add("input shape=1x1x1\ndense units=1")
+	f.Add("conv out=3 kernel=3x3 stride=2 pad=1,1,1,1\nrelu # c\n")
+	f.Add("input shape=1x1x1\ndense out=1")
 	f.Add("maxpool size=99999999999")
 	f.Add("")
 	f.Fuzz(func(t *testing.T, text string) {

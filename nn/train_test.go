@@ -34,15 +34,15 @@ func quadrantTask(rng *rand.Rand, n int) ([]float32, []int) {
 }
 
 const tinySpec = `input shape=8x8x1
-conv filters=8 kernel=3 pad=same bias=false
+conv out=8 kernel=3 pad=same bias=false
 batchnorm
 relu
 maxpool size=2
-conv filters=16 kernel=3 pad=same
+conv out=16 kernel=3 pad=same
 relu
 dropout rate=0.1
 globalavgpool
-dense units=4
+dense out=4
 `
 
 func newTinyTrainer(t testing.TB, seed uint64) *Trainer {

@@ -42,7 +42,7 @@ func ExampleEncodeRescale() {
 
 // Export a quantised network for a device: blob, scheme and C header.
 func ExampleExport() {
-	net, _ := nn.FromSpec("input shape=8x8x1\nconv filters=4 kernel=3 pad=same\nrelu\nglobalavgpool\ndense units=2", nn.Shape{}, 1)
+	net, _ := nn.FromSpec("input shape=8x8x1\nconv out=4 kernel=3 pad=same\nrelu\nglobalavgpool\ndense out=2", nn.Shape{}, 1)
 	defer net.Close()
 	x := make([]float32, 4*64)
 	for i := range x {

@@ -49,11 +49,11 @@ func PrepareQAT(net *nn.Network, s Scheme) (*QAT, error) {
 		}
 		switch f.Op {
 		case OpConv:
-			fmt.Fprintf(&b, "conv filters=%d kernel=%dx%d stride=%dx%d %s bias=true\n", f.Out.C, g.KH, g.KW, g.SH, g.SW, pad())
+			fmt.Fprintf(&b, "conv out=%d kernel=%dx%d stride=%dx%d %s bias=true\n", f.Out.C, g.KH, g.KW, g.SH, g.SW, pad())
 		case OpDepthwise:
 			fmt.Fprintf(&b, "depthwise kernel=%dx%d stride=%dx%d %s bias=true\n", g.KH, g.KW, g.SH, g.SW, pad())
 		case OpDense:
-			fmt.Fprintf(&b, "dense units=%d\n", f.Out.Size())
+			fmt.Fprintf(&b, "dense out=%d\n", f.Out.Size())
 		case OpMaxPool, OpAvgPool:
 			fmt.Fprintf(&b, "%s size=%dx%d stride=%dx%d %s\n", f.Op, g.KH, g.KW, g.SH, g.SW, pad())
 		case OpGlobalAvgPool:

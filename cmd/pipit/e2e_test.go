@@ -179,7 +179,7 @@ func linearBaseline(t *testing.T, manifest string) float64 {
 			trX, trY = append(trX, mean...), append(trY, y)
 		}
 	}
-	net, err := nn.FromSpec("input shape=1x1x40\ndense units=8", nn.Shape{}, 1)
+	net, err := nn.FromSpec("input shape=1x1x40\ndense out=8", nn.Shape{}, 1)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -60,7 +60,8 @@ func TestFoldMatchesNetwork(t *testing.T) {
 		}
 		net.Close()
 	}
-	// Krishnamoorthi 2018 BN-folding example (check-values.md §4.1):
+	// Batch-norm folding of Krishnamoorthi 2018 (arXiv:1806.08342), eqs.
+	// 20–21, W' = γW/σ and b' = β − γμ/σ, worked by hand:
 	// γ = 2, σ = 4 (var 16, ε → 0), μ = 1, β = 0.5, W = 3 → W' = 1.5, b' = 0.
 	net, _ := nn.FromSpec("input shape=1x1x1\ndense out=1\nbatchnorm eps=1e-12", nn.Shape{}, 1)
 	d := net.Layers[0].(*nn.Dense)

@@ -99,7 +99,7 @@ func newEvalCmd() *cobra.Command {
 	var asJSON, skipBad bool
 	cmd := &cobra.Command{
 		Use:   "eval --model MODEL --data MANIFEST|FOLDER",
-		Short: "Evaluate a float or int8 model: accuracy, per-class precision/recall/F1, confusion matrix",
+		Short: "Evaluate a float or int8 model: accuracy, recall, precision and F1 by class, confusion matrix",
 		Long: `eval runs a model over a fold of a corpus (default: the fold it held out
 for testing) and reports accuracy, balanced accuracy, per-class precision,
 recall and F1 and the confusion matrix, for windows and for whole clips

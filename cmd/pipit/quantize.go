@@ -212,7 +212,7 @@ func fineTuneQAT(m *loadedModel, c *datasets.Corpus, opts datasets.Options, s qu
 		return nil, err
 	}
 	trainSet.Stats, valSet.Stats = m.info.Stats, m.info.Stats
-	qat, err := quant.PrepareQAT(m.net, s)
+	qat, err := quant.NewQAT(m.net, s)
 	if err != nil {
 		return nil, err
 	}
@@ -237,7 +237,7 @@ func fineTuneQAT(m *loadedModel, c *datasets.Corpus, opts datasets.Options, s qu
 	if err != nil {
 		return nil, err
 	}
-	return qat.Convert()
+	return qat.Quantize()
 }
 
 func mustJSON(v any) []byte {

@@ -1,6 +1,6 @@
 // Package quant turns a trained float network into an int8 network whose
 // every arithmetic step is integer, and measures what that costs: batch
-// norm folding, calibration observers, per-channel weight quantisation,
+// norm folding, calibration of activation ranges, per-channel weight quantisation,
 // fixed-point requantisation, the integer-only reference engine, overflow
 // checks and per-layer SQNR.
 //

@@ -59,7 +59,7 @@ pipit eval.`,
 	f.StringVar(&model, "model", "", "float model written by pipit train (required)")
 	f.StringVar(&calib, "calib", "", "corpus to calibrate on: manifest CSV or class folders (required)")
 	f.IntVar(&calibFold, "calib-fold", -2, "calibration fold (default: the model's validation fold; -1: every fold but the test fold)")
-	f.StringVar(&method, "method", quant.MethodAuto, "range observer: minmax, percentile, mse or auto (best on the calibration set)")
+	f.StringVar(&method, "method", quant.MethodAuto, "how activation ranges are calibrated: minmax, percentile, mse or auto (best on the calibration set)")
 	f.StringVar(&scheme, "scheme", quant.PerChannel, "weights: per-channel, per-tensor, or pow2 (per-channel with power-of-two scales)")
 	f.StringVar(&out, "out", "", "int8 model file to write, by convention NAME.pq8 (required)")
 	f.StringVar(&group, "group", "", "manifest column naming the source recording")

@@ -59,6 +59,6 @@
 //
 // # Errors
 //
-// Networks with layers or orders the engine does not support, and
+// Networks with layers or orders the engine does not handle, and
 // calibration that yields unusable ranges, are errors naming the layer.
 package quant

@@ -7,8 +7,10 @@ import (
 	"github.com/pipit-audio/pipit/features"
 )
 
-// ModelInfoVersion is the version of [ModelInfo]'s JSON form.
-const ModelInfoVersion = 1
+// ModelInfoVersion is the version of [ModelInfo]'s JSON form. Version 2
+// names the front end's per-frame floor "floor_below_peak_db" and its end
+// padding "pad_ends"; version 1 files are refused.
+const ModelInfoVersion = 2
 
 // ModelInfo is what a trained model file records besides the network, so
 // that evaluation, quantisation and a device reproduce the inputs exactly.

@@ -64,7 +64,7 @@ func (w WindowConfig) Starts(total int) []int {
 // (Frames−1)·hop + window (without centring; with centring the first and
 // last half windows are padding and (Frames−1)·hop samples suffice).
 func (w WindowConfig) Samples(fe features.Config) int {
-	if fe.Center {
+	if fe.PadEnds {
 		return (w.Frames - 1) * fe.HopSamples
 	}
 	return (w.Frames-1)*fe.HopSamples + fe.WindowSamples

@@ -21,7 +21,7 @@ const (
 // is written into model files and export descriptions.
 //
 // A frame t covers samples [t·Hop - pad, t·Hop - pad + Window) of the
-// signal at SampleRateHz, with pad = Window/2 when Center is set and 0
+// signal at SampleRateHz, with pad = Window/2 when PadEnds is set and 0
 // otherwise, and zeros outside the signal. The frame is multiplied by the
 // window, zero-padded symmetrically to FFTSize (offset (FFTSize-Window)/2),
 // transformed by an unnormalised real DFT X[k] = Σ x[n]·e^(-2πikn/N), and
@@ -31,50 +31,51 @@ const (
 //
 //   - "ln": ln(max(v, LogFloor));
 //   - "db": 10·log10(max(v, LogFloor)), then raised to at least
-//     (maximum over the frame's bands) − TopDB when TopDB > 0. The clip is
-//     per frame, not per matrix, so a streaming device can apply it.
+//     (maximum over the frame's bands) − FloorBelowPeakDB when
+//     FloorBelowPeakDB > 0. The floor is per frame, not per matrix, so a
+//     streaming device can apply it.
 //
 // Use [DefaultConfig] and change fields; [Config.Validate] checks a Config.
 type Config struct {
-	SampleRateHz    int     `json:"sample_rate_hz"`
-	WindowSamples   int     `json:"window_samples"`
-	HopSamples      int     `json:"hop_samples"`
-	FFTSize         int     `json:"fft_size"`         // ≥ WindowSamples
-	Window          string  `json:"window"`           // "hann" or "hamming"
-	SymmetricWindow bool    `json:"symmetric_window"` // false: periodic (DFT-even)
-	Center          bool    `json:"center"`           // pad Window/2 zeros at both ends
-	Bands           int     `json:"bands"`
-	FMinHz          float64 `json:"fmin_hz"`
-	FMaxHz          float64 `json:"fmax_hz"`   // ≤ SampleRateHz/2
-	MelScale        string  `json:"mel_scale"` // "htk" or "slaney"
-	MelNorm         string  `json:"mel_norm"`  // "none" or "area"
-	Spectrum        string  `json:"spectrum"`  // "power" or "magnitude"
-	Log             string  `json:"log"`       // "ln" or "db"
-	LogFloor        float64 `json:"log_floor"` // ≥ 1e-30
-	TopDB           float64 `json:"top_db"`    // "db" only; 0 disables the clip
+	SampleRateHz     int     `json:"sample_rate_hz"`
+	WindowSamples    int     `json:"window_samples"`
+	HopSamples       int     `json:"hop_samples"`
+	FFTSize          int     `json:"fft_size"`         // ≥ WindowSamples
+	Window           string  `json:"window"`           // "hann" or "hamming"
+	SymmetricWindow  bool    `json:"symmetric_window"` // false: periodic (DFT-even)
+	PadEnds          bool    `json:"pad_ends"`         // pad Window/2 zeros at both ends
+	Bands            int     `json:"bands"`
+	FMinHz           float64 `json:"fmin_hz"`
+	FMaxHz           float64 `json:"fmax_hz"`             // ≤ SampleRateHz/2
+	MelScale         string  `json:"mel_scale"`           // "htk" or "slaney"
+	MelNorm          string  `json:"mel_norm"`            // "none" or "area"
+	Spectrum         string  `json:"spectrum"`            // "power" or "magnitude"
+	Log              string  `json:"log"`                 // "ln" or "db"
+	LogFloor         float64 `json:"log_floor"`           // ≥ 1e-30
+	FloorBelowPeakDB float64 `json:"floor_below_peak_db"` // "db" only; 0 disables the clip
 }
 
 // DefaultConfig returns pipit's default front end: 16 kHz, 512-sample
-// (32 ms) periodic Hann window, 256-sample hop, FFT of 512, no centring,
+// (32 ms) periodic Hann window, 256-sample hop, FFT of 512, no end padding,
 // 40 HTK bands from 0 Hz to 8 kHz without area normalisation, power
 // spectrum, dB with a floor of 1e-10 (−100 dB) and an 80 dB per-frame clip.
 // One second of audio gives 61 frames.
 func DefaultConfig() Config {
 	return Config{
-		SampleRateHz:  16000,
-		WindowSamples: 512,
-		HopSamples:    256,
-		FFTSize:       512,
-		Window:        WindowHann,
-		Bands:         40,
-		FMinHz:        0,
-		FMaxHz:        8000,
-		MelScale:      MelHTK,
-		MelNorm:       MelNormNone,
-		Spectrum:      SpectrumPower,
-		Log:           LogDecibel,
-		LogFloor:      1e-10,
-		TopDB:         80,
+		SampleRateHz:     16000,
+		WindowSamples:    512,
+		HopSamples:       256,
+		FFTSize:          512,
+		Window:           WindowHann,
+		Bands:            40,
+		FMinHz:           0,
+		FMaxHz:           8000,
+		MelScale:         MelHTK,
+		MelNorm:          MelNormNone,
+		Spectrum:         SpectrumPower,
+		Log:              LogDecibel,
+		LogFloor:         1e-10,
+		FloorBelowPeakDB: 80,
 	}
 }
 
@@ -106,8 +107,8 @@ func (c Config) Validate() error {
 		return badConfig("log %q, want %q or %q", c.Log, LogNatural, LogDecibel)
 	case !(c.LogFloor >= 1e-30) || math.IsInf(c.LogFloor, 0):
 		return badConfig("log floor %g, want a finite value ≥ 1e-30", c.LogFloor)
-	case !(c.TopDB >= 0) || math.IsInf(c.TopDB, 0):
-		return badConfig("top dB %g, want 0 (off) or a positive finite value", c.TopDB)
+	case !(c.FloorBelowPeakDB >= 0) || math.IsInf(c.FloorBelowPeakDB, 0):
+		return badConfig("floor below peak %g dB, want 0 (off) or a positive finite value", c.FloorBelowPeakDB)
 	case !(c.FMinHz >= 0) || !(c.FMaxHz > c.FMinHz):
 		return badConfig("frequency range %g..%g Hz is empty or negative", c.FMinHz, c.FMaxHz)
 	case c.FMaxHz > float64(c.SampleRateHz)/2:
@@ -127,7 +128,7 @@ func (c Config) Validate() error {
 // than one window.
 func (c Config) Frames(n int) int {
 	pad := 0
-	if c.Center {
+	if c.PadEnds {
 		pad = c.WindowSamples / 2
 	}
 	total := n + 2*pad

@@ -33,7 +33,7 @@
 //     Auditory Toolbox scale; triangles are linear in Hz between mel-spaced
 //     edges, peak 1, optionally area-normalised to unit area in Hz.
 //   - Log: natural log with a floor, or dB (10·log10) with a floor and a
-//     per-frame top-dB clip.
+//     per-frame floor a fixed number of dB below the frame's loudest band.
 //   - Resampling: Kaiser-windowed sinc, passband to 0.9 of the lower
 //     Nyquist frequency, designed for 90 dB stopband (measured: ≥ 88 dB
 //     alias rejection and ≤ 0.001 dB passband ripple for every pair of the

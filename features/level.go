@@ -8,8 +8,9 @@ import (
 )
 
 // Pole frequencies and normalisation constants of the A and C frequency
-// weightings, IEC 61672-1:2013 Annex E (E.4.1, E.4.2), as transcribed in
-// check-values.md §7.1.
+// weightings, IEC 61672-1:2013 Annex E (E.4.1, E.4.2), read from the
+// transcription in python-acoustics (acoustics/standards/iec_61672_1_2013.py),
+// not from the standard itself.
 const (
 	iecF1    = 20.60   // Hz
 	iecF2    = 107.7   // Hz

@@ -6,11 +6,13 @@ import (
 )
 
 func TestWeightingsAgainstIEC61672(t *testing.T) {
-	// Nominal A and C weightings of IEC 61672-1:2013 Table 3 (check-values.md
-	// §7.2, [S]: two independent transcriptions agree), which the Annex E
-	// expressions reproduce to the printed 0.1 dB when evaluated at the
-	// exact base-10 frequencies f = 1000·10^(n/10), n = −20…13
-	// (check-values.md §7.2 "Reproduction").
+	// Nominal A and C weightings of IEC 61672-1:2013 Table 3, read from two
+	// independent transcriptions that agree (python-acoustics,
+	// acoustics/data/iec_61672_1_2013.csv, and a web table of the exact
+	// base-10 frequencies), not from the standard itself. The Annex E
+	// expressions (E.1, E.6) reproduce them to the printed 0.1 dB when
+	// evaluated at the exact base-10 frequencies f = 1000·10^(n/10),
+	// n = −20…13 (at the nominal frequencies some round differently).
 	A := []float64{-70.4, -63.4, -56.7, -50.5, -44.7, -39.4, -34.6, -30.2, -26.2, -22.5, -19.1, -16.1, -13.4, -10.9, -8.6, -6.6, -4.8, -3.2, -1.9, -0.8, 0, 0.6, 1.0, 1.2, 1.3, 1.2, 1.0, 0.5, -0.1, -1.1, -2.5, -4.3, -6.6, -9.3}
 	C := []float64{-14.3, -11.2, -8.5, -6.2, -4.4, -3.0, -2.0, -1.3, -0.8, -0.5, -0.3, -0.2, -0.1, 0, 0, 0, 0, 0, 0, 0, 0, 0, -0.1, -0.2, -0.3, -0.5, -0.8, -1.3, -2.0, -3.0, -4.4, -6.2, -8.5, -11.2}
 	for i := range A {
@@ -23,11 +25,13 @@ func TestWeightingsAgainstIEC61672(t *testing.T) {
 		}
 	}
 	// At 1 kHz both are 0 within the rounding of the published constants:
-	// A(1000) = +0.000142 dB, C(1000) = +0.000096 dB (check-values.md §7.1 [D]).
+	// A(1000) = +0.000142 dB, C(1000) = +0.000096 dB (derived: eqs. E.1 and
+	// E.6 with the rounded E.4 constants, evaluated in float64).
 	if a, c := AWeightingDB(1000), CWeightingDB(1000); math.Abs(a) > 1e-3 || math.Abs(c) > 1e-3 {
 		t.Errorf("A(1 kHz) = %.6f, C(1 kHz) = %.6f dB, want 0 within 1e-3", a, c)
 	}
-	// Derived values at exact frequencies (check-values.md §7.2 table [D]).
+	// Derived values at exact frequencies: eqs. E.1 and E.6 evaluated in
+	// float64 with a few lines of Python, not published figures.
 	for _, c := range []struct{ f, a, c float64 }{{31.6228, -39.444, -3.010}, {100, -19.145, -0.300}, {501.1872, -3.233, 0.033}, {2511.886, 1.271, -0.300}, {10000, -2.492, -4.405}, {15848.93, -6.602, -8.531}} {
 		if math.Abs(AWeightingDB(c.f)-c.a) > 0.001 || math.Abs(CWeightingDB(c.f)-c.c) > 0.001 {
 			t.Errorf("%.1f Hz: A %.4f C %.4f, want %.3f and %.3f", c.f, AWeightingDB(c.f), CWeightingDB(c.f), c.a, c.c)

@@ -112,8 +112,8 @@ func (e *Extractor) Frame(dst, frame []float32) {
 		}
 		dst[m] = float32(v)
 	}
-	if db && e.cfg.TopDB > 0 {
-		lo := float32(peak - e.cfg.TopDB)
+	if db && e.cfg.FloorBelowPeakDB > 0 {
+		lo := float32(peak - e.cfg.FloorBelowPeakDB)
 		for m, v := range dst {
 			if v < lo {
 				dst[m] = lo
@@ -142,7 +142,7 @@ func (e *Extractor) Compute(samples []float32) (*tensor.Dense, error) {
 	frame := make([]float32, e.cfg.WindowSamples)
 	col := make([]float32, e.cfg.Bands)
 	pad := 0
-	if e.cfg.Center {
+	if e.cfg.PadEnds {
 		pad = e.cfg.WindowSamples / 2
 	}
 	for t := 0; t < nf; t++ {

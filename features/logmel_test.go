@@ -14,9 +14,12 @@ import (
 )
 
 func TestSpectrumAnalyticFrame(t *testing.T) {
-	// check-values.md §8.2 (derived from the definitions): N = 8, periodic
-	// Hann, x[n] = cos(2πn/8) → rfft(w·x) = [-2, 2, -1, 0, 0], power
-	// [4, 4, 1, 0, 0]. Checks window, DFT sign/scale and bin layout at once.
+	// Worked by hand from the definitions (not a published example): N = 8,
+	// periodic Hann w[n] = 0.5 − 0.5·cos(2πn/8) (the DFT-even form of
+	// Harris 1978, Proc. IEEE 66(1)), x[n] = cos(2πn/8), so
+	// w·x = 0.5·cos θ − 0.25 − 0.25·cos 2θ and, with X[k] = Σ x[n]·e^(−2πikn/N),
+	// rfft(w·x) = [-2, 2, -1, 0, 0], power [4, 4, 1, 0, 0]. Checks window,
+	// DFT sign/scale and bin layout at once.
 	cfg := DefaultConfig()
 	cfg.WindowSamples, cfg.FFTSize, cfg.HopSamples, cfg.Bands = 8, 8, 8, 1
 	cfg.SampleRateHz, cfg.FMaxHz = 8, 4
@@ -202,9 +205,9 @@ func TestStreamMatchesBatch(t *testing.T) {
 	}
 	variants := map[string]func(*Config){
 		"default":         func(*Config) {},
-		"center":          func(c *Config) { c.Center = true },
+		"pad ends":        func(c *Config) { c.PadEnds = true },
 		"hop > window":    func(c *Config) { c.WindowSamples, c.FFTSize, c.HopSamples = 256, 256, 300 },
-		"odd window, ln":  func(c *Config) { c.WindowSamples, c.HopSamples, c.Center, c.Log = 401, 160, true, LogNatural },
+		"odd window, ln":  func(c *Config) { c.WindowSamples, c.HopSamples, c.PadEnds, c.Log = 401, 160, true, LogNatural },
 		"slaney, hamming": func(c *Config) { c.MelScale, c.Window, c.MelNorm = MelSlaney, WindowHamming, MelNormArea },
 	}
 	for name, mod := range variants {

@@ -6,10 +6,14 @@ import (
 )
 
 func TestHzToMel(t *testing.T) {
-	// Values: check-values.md §6.1, computed from the published formulas
-	// HTK mel = 2595·log10(1+f/700) (HTK Book eq. 5.13) and Slaney's
-	// Auditory Toolbox scale (linear 200/3 Hz per mel below 1 kHz, 27 log
-	// steps from 1 kHz to 6.4 kHz; Ellis hz2mel.m).
+	// Values computed in float64 from the published formulas: HTK mel =
+	// 2595·log10(1+f/700) (HTK Book §5.4 "Filterbank Analysis"; the
+	// equation number 5.13 is from memory; HTK 3.4.1 HSigP.c computes the
+	// same scale as 1127·ln(1+f/700)) and Slaney's Auditory Toolbox scale
+	// (M. Slaney, Auditory Toolbox v2, Interval Research Tech. Report
+	// 1998-010, mfcc.m: linear 200/3 Hz per mel below 1 kHz, 27 log steps
+	// from 1 kHz to 6.4 kHz; continuous form of D. P. W. Ellis, hz2mel.m,
+	// LabROSA rastamat, 2005).
 	cases := []struct {
 		hz, htk, slaney float64
 	}{
@@ -37,7 +41,8 @@ func TestHzToMel(t *testing.T) {
 			}
 		}
 	}
-	// Inverse check values, check-values.md §6.1 and §6.2.
+	// Inverse check values: the inverses of the same formulas (HTK:
+	// 700·(10^(m/2595) − 1); Slaney: Ellis, mel2hz.m), computed in float64.
 	inv := []struct {
 		scale   string
 		mel, hz float64
@@ -57,7 +62,8 @@ func TestHzToMel(t *testing.T) {
 func TestMelFilterbankShape(t *testing.T) {
 	// Slaney's mfcc.m (Auditory Toolbox): area-normalised triangles have
 	// height 2/(upper-lower); its first filter spans 133.33..266.67 Hz with
-	// height 2/133.33 = 0.015 (check-values.md §6.2). Our edges come from the
+	// height 2/133.33 = 0.015 (read in Slaney's own Python port,
+	// python_auditory_toolbox, function Mfcc). Our edges come from the
 	// continuous scale, so with fmin=133.3333 Hz and the 13 linear bands
 	// spaced 66.67 Hz the first triangle is the same.
 	fmin := 400.0 / 3

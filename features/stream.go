@@ -6,7 +6,7 @@ import "fmt"
 // rate in chunks of any size and emits each frame as soon as its last
 // sample has arrived. The frames equal those of [Extractor.Compute] on the
 // concatenated signal (the same code computes both), including the
-// leading and, after [Stream.Flush], trailing zero padding when Center is
+// leading and, after [Stream.Flush], trailing zero padding when PadEnds is
 // set. A Stream is not safe for concurrent use.
 type Stream struct {
 	ex      *Extractor
@@ -31,7 +31,7 @@ func NewStream(cfg Config) (*Stream, error) {
 // Reset starts a new signal.
 func (s *Stream) Reset() {
 	s.filled, s.skip, s.seen, s.emitted = 0, 0, 0, 0
-	if s.ex.cfg.Center {
+	if s.ex.cfg.PadEnds {
 		for i := 0; i < s.ex.cfg.WindowSamples/2; i++ {
 			s.push(0)
 		}
@@ -51,12 +51,12 @@ func (s *Stream) Push(dst, pcm []float32) []float32 {
 	return dst
 }
 
-// Flush ends the signal: with Center set it feeds the trailing Window/2
+// Flush ends the signal: with PadEnds set it feeds the trailing Window/2
 // zeros, so that the total number of frames equals [Config.Frames] of all
 // samples pushed, and appends the resulting frames to dst. Call
 // [Stream.Reset] before pushing a new signal.
 func (s *Stream) Flush(dst []float32) []float32 {
-	if s.ex.cfg.Center {
+	if s.ex.cfg.PadEnds {
 		want := s.ex.cfg.Frames(s.seen)
 		for i := 0; i < s.ex.cfg.WindowSamples/2 && s.emitted < want; i++ {
 			if s.push(0) {

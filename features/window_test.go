@@ -29,8 +29,9 @@ func TestWindowNumpyDoctest(t *testing.T) {
 			}
 		}
 	}
-	// Periodic Hann of length 8, check-values.md §8.2 (derived from the
-	// definition): [0, 0.1464466094, 0.5, 0.8535533906, 1, ...].
+	// Periodic Hann of length 8 computed from its definition
+	// w[n] = 0.5 − 0.5·cos(2πn/8) (Harris 1978, DFT-even form):
+	// [0, 0.1464466094, 0.5, 0.8535533906, 1, ...].
 	w, _ := WindowFunc(WindowHann, 8, true)
 	want := []float64{0, 0.1464466094, 0.5, 0.8535533906, 1, 0.8535533906, 0.5, 0.1464466094}
 	for i := range w {
@@ -77,11 +78,11 @@ func windowFigures(w []float64) (cg, enbw, sidelobeDB float64) {
 
 func TestWindowHarrisFigures(t *testing.T) {
 	// Harris 1978, Proc. IEEE 66(1), Table I, for the DFT-even (periodic)
-	// windows. The table itself is from memory (check-values.md §5: [M],
-	// CG and ENBW corroborated by secondary citations): Hann CG 0.50,
+	// windows. The table's values are from memory (the table could not be
+	// read; CG and ENBW agree with secondary citations of it): Hann CG 0.50,
 	// ENBW 1.50 bins, highest sidelobe -32 dB; Hamming CG 0.54, ENBW 1.36,
 	// sidelobe -43 dB. The tighter "derived" values are computed here from
-	// the definitions in the large-N limit (check-values.md §5 [D]):
+	// the definitions (ENBW = N·Σw²/(Σw)², CG = Σw/N) in the large-N limit:
 	// Hann sidelobe -31.47 dB, Hamming ENBW 1.36283 and sidelobe -42.67 dB.
 	cases := []struct {
 		kind                  string

@@ -16,63 +16,63 @@ var ReferenceInput = Shape{H: 40, W: 61, C: 1}
 var archSpecs = map[string]string{
 	// 3×3 convolutions of 16, 32, 32 with BN+ReLU, 2×2 max pooling after
 	// the first two, global average pool, dense 32 + ReLU, dense N.
-	"pooled": `conv filters=16 kernel=3x3 stride=1 pad=same bias=false
+	"pooled": `conv out=16 kernel=3x3 stride=1 pad=same bias=false
 batchnorm
 relu
 maxpool size=2x2 stride=2x2
-conv filters=32 kernel=3x3 stride=1 pad=same bias=false
+conv out=32 kernel=3x3 stride=1 pad=same bias=false
 batchnorm
 relu
 maxpool size=2x2 stride=2x2
-conv filters=32 kernel=3x3 stride=1 pad=same bias=false
+conv out=32 kernel=3x3 stride=1 pad=same bias=false
 batchnorm
 relu
 globalavgpool
-dense units=32
+dense out=32
 relu
-dense units=%d
+dense out=%d
 `,
 	// the same with the first two convolutions at stride 2 and no pooling.
-	"strided": `conv filters=16 kernel=3x3 stride=2 pad=same bias=false
+	"strided": `conv out=16 kernel=3x3 stride=2 pad=same bias=false
 batchnorm
 relu
-conv filters=32 kernel=3x3 stride=2 pad=same bias=false
+conv out=32 kernel=3x3 stride=2 pad=same bias=false
 batchnorm
 relu
-conv filters=32 kernel=3x3 stride=1 pad=same bias=false
+conv out=32 kernel=3x3 stride=1 pad=same bias=false
 batchnorm
 relu
 globalavgpool
-dense units=32
+dense out=32
 relu
-dense units=%d
+dense out=%d
 `,
 	// 3×3 stride-2 convolution of 16, then three depthwise 3×3 (strides
 	// 2, 2, 1) + pointwise (32, 64, 64) blocks, all with BN+ReLU, global
 	// average pool, dense N.
-	"separable": `conv filters=16 kernel=3x3 stride=2 pad=same bias=false
+	"separable": `conv out=16 kernel=3x3 stride=2 pad=same bias=false
 batchnorm
 relu
 depthwise kernel=3x3 stride=2 pad=same bias=false
 batchnorm
 relu
-pointwise filters=32 bias=false
+pointwise out=32 bias=false
 batchnorm
 relu
 depthwise kernel=3x3 stride=2 pad=same bias=false
 batchnorm
 relu
-pointwise filters=64 bias=false
+pointwise out=64 bias=false
 batchnorm
 relu
 depthwise kernel=3x3 stride=1 pad=same bias=false
 batchnorm
 relu
-pointwise filters=64 bias=false
+pointwise out=64 bias=false
 batchnorm
 relu
 globalavgpool
-dense units=%d
+dense out=%d
 `,
 }
 

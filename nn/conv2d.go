@@ -79,7 +79,7 @@ func geometry(in Shape, kh, kw, sh, sw int, p Padding) (kernels.ConvGeom, error)
 
 // Conv2DConfig configures a [Conv2D]. Zero strides mean 1.
 type Conv2DConfig struct {
-	Filters   int // OutC
+	Out       int // output channels OutC (spec: out=N)
 	KH, KW    int // kernel size
 	SH, SW    int // strides
 	Pad       Padding
@@ -122,9 +122,9 @@ func NewConv2D(cfg Conv2DConfig) *Conv2D {
 	return &Conv2D{cfg: cfg}
 }
 
-// NewPointwise returns a 1×1 convolution with filters outputs.
-func NewPointwise(filters int, bias bool) *Conv2D {
-	return NewConv2D(Conv2DConfig{Filters: filters, KH: 1, KW: 1, SH: 1, SW: 1, Pad: Padding{Mode: PadValid}, Bias: bias, Pointwise: true})
+// NewPointwise returns a 1×1 convolution with out output channels.
+func NewPointwise(out int, bias bool) *Conv2D {
+	return NewConv2D(Conv2DConfig{Out: out, KH: 1, KW: 1, SH: 1, SW: 1, Pad: Padding{Mode: PadValid}, Bias: bias, Pointwise: true})
 }
 
 // Kind implements Layer.
@@ -138,9 +138,9 @@ func (l *Conv2D) Kind() string {
 // Spec implements Layer.
 func (l *Conv2D) Spec() string {
 	if l.cfg.Pointwise {
-		return fmt.Sprintf("pointwise filters=%d bias=%v", l.cfg.Filters, l.cfg.Bias)
+		return fmt.Sprintf("pointwise out=%d bias=%v", l.cfg.Out, l.cfg.Bias)
 	}
-	return fmt.Sprintf("conv filters=%d kernel=%dx%d stride=%dx%d %s bias=%v", l.cfg.Filters, l.cfg.KH, l.cfg.KW, l.cfg.SH, l.cfg.SW, l.cfg.Pad.spec(), l.cfg.Bias)
+	return fmt.Sprintf("conv out=%d kernel=%dx%d stride=%dx%d %s bias=%v", l.cfg.Out, l.cfg.KH, l.cfg.KW, l.cfg.SH, l.cfg.SW, l.cfg.Pad.spec(), l.cfg.Bias)
 }
 
 // Config returns the layer's configuration.
@@ -150,8 +150,8 @@ func (l *Conv2D) Config() Conv2DConfig { return l.cfg }
 func (l *Conv2D) Geometry() kernels.ConvGeom { return l.g }
 
 func (l *Conv2D) setup(in Shape) (Shape, error) {
-	if l.cfg.Filters < 1 {
-		return Shape{}, shapeErr("conv: %d filters", l.cfg.Filters)
+	if l.cfg.Out < 1 {
+		return Shape{}, shapeErr("conv: out=%d, want at least 1", l.cfg.Out)
 	}
 	g, err := geometry(in, l.cfg.KH, l.cfg.KW, l.cfg.SH, l.cfg.SW, l.cfg.Pad)
 	if err != nil {
@@ -159,14 +159,14 @@ func (l *Conv2D) setup(in Shape) (Shape, error) {
 	}
 	l.g = g
 	l.direct = g.KH == 1 && g.KW == 1 && g.SH == 1 && g.SW == 1 && g.PadTop == 0 && g.PadLeft == 0
-	return Shape{g.OH, g.OW, l.cfg.Filters}, nil
+	return Shape{g.OH, g.OW, l.cfg.Out}, nil
 }
 
 func (l *Conv2D) params() []ParamSpec {
 	k := l.g.KH * l.g.KW * l.g.C
-	ps := []ParamSpec{{Role: "weight", Shape: []int{l.cfg.Filters, l.g.KH, l.g.KW, l.g.C}, Init: InitHe, FanIn: k, Decay: true}}
+	ps := []ParamSpec{{Role: "weight", Shape: []int{l.cfg.Out, l.g.KH, l.g.KW, l.g.C}, Init: InitHe, FanIn: k, Decay: true}}
 	if l.cfg.Bias {
-		ps = append(ps, ParamSpec{Role: "bias", Shape: []int{l.cfg.Filters}})
+		ps = append(ps, ParamSpec{Role: "bias", Shape: []int{l.cfg.Out}})
 	}
 	return ps
 }
@@ -197,7 +197,7 @@ func (l *Conv2D) plan(n int) {
 }
 
 func (l *Conv2D) macs() int64 {
-	return int64(l.g.OH) * int64(l.g.OW) * int64(l.cfg.Filters) * int64(l.g.KH*l.g.KW*l.g.C)
+	return int64(l.g.OH) * int64(l.g.OW) * int64(l.cfg.Out) * int64(l.g.KH*l.g.KW*l.g.C)
 }
 
 const (
@@ -210,7 +210,7 @@ const (
 // contiguous rows of B (the layout of the blocked matrix kernels).
 func (l *Conv2D) forward(p *Pass, out, x []float32, n int) {
 	l.x, l.out = x, out
-	kernels.Transpose(l.wT, l.Weight, l.cfg.Filters, l.g.KH*l.g.KW*l.g.C)
+	kernels.Transpose(l.wT, l.Weight, l.cfg.Out, l.g.KH*l.g.KW*l.g.C)
 	p.exec.run(l, phaseForward, n)
 }
 
@@ -225,8 +225,8 @@ func (l *Conv2D) backward(p *Pass, dx, dout, x, out []float32, n int) {
 
 func (l *Conv2D) runShard(phase, s, lo, hi int) {
 	g := l.g
-	inSize, outSize := g.H*g.W*g.C, g.OH*g.OW*l.cfg.Filters
-	pos, k, oc := g.OH*g.OW, g.KH*g.KW*g.C, l.cfg.Filters
+	inSize, outSize := g.H*g.W*g.C, g.OH*g.OW*l.cfg.Out
+	pos, k, oc := g.OH*g.OW, g.KH*g.KW*g.C, l.cfg.Out
 	if l.direct {
 		// pointwise: the shard's input is already its (samples·positions, InC)
 		// column matrix, so each product runs once over the whole shard.
@@ -272,7 +272,7 @@ func (l *Conv2D) runShard(phase, s, lo, hi int) {
 
 // product sets out (rows, OutC) = cols (rows, K) · Wᵀ + Bias.
 func (l *Conv2D) product(out, cols []float32, rows int) {
-	oc, k := l.cfg.Filters, l.g.KH*l.g.KW*l.g.C
+	oc, k := l.cfg.Out, l.g.KH*l.g.KW*l.g.C
 	if l.Bias == nil {
 		kernels.GemmNNSet(rows, oc, k, cols, l.wT, out)
 		return
@@ -289,7 +289,7 @@ func (l *Conv2D) biasGrad(s int, dout []float32, rows int) {
 	if l.Bias == nil {
 		return
 	}
-	oc := l.cfg.Filters
+	oc := l.cfg.Out
 	bg := l.grads.b[s]
 	for q := 0; q < rows; q++ {
 		for o, v := range dout[q*oc : (q+1)*oc] {

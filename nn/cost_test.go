@@ -11,11 +11,12 @@ import (
 // width multiplier alpha as a layer spec: every convolution without bias
 // and followed by batch norm and ReLU, the second-to-last depthwise layer
 // at stride 1 (the printed "s2" is an erratum: its input and output are
-// both 7×7; check-values.md §1.2), global average pool, FC 1000.
+// both 7×7, and the published totals reproduce only with s1), global
+// average pool, FC 1000.
 func mobileNetSpec(alpha float64) string {
 	ch := func(c int) int { return int(alpha * float64(c)) }
 	var b strings.Builder
-	fmt.Fprintf(&b, "conv filters=%d kernel=3 stride=2 pad=same bias=false\nbatchnorm\nrelu\n", ch(32))
+	fmt.Fprintf(&b, "conv out=%d kernel=3 stride=2 pad=same bias=false\nbatchnorm\nrelu\n", ch(32))
 	blocks := []struct{ stride, out int }{
 		{1, 64}, {2, 128}, {1, 128}, {2, 256}, {1, 256}, {2, 512},
 		{1, 512}, {1, 512}, {1, 512}, {1, 512}, {1, 512},
@@ -23,14 +24,15 @@ func mobileNetSpec(alpha float64) string {
 	}
 	for _, bl := range blocks {
 		fmt.Fprintf(&b, "depthwise kernel=3 stride=%d pad=same bias=false\nbatchnorm\nrelu\n", bl.stride)
-		fmt.Fprintf(&b, "pointwise filters=%d bias=false\nbatchnorm\nrelu\n", ch(bl.out))
+		fmt.Fprintf(&b, "pointwise out=%d bias=false\nbatchnorm\nrelu\n", ch(bl.out))
 	}
-	b.WriteString("globalavgpool\ndense units=1000\n")
+	b.WriteString("globalavgpool\ndense out=1000\n")
 	return b.String()
 }
 
 func TestCostMobileNet(t *testing.T) {
-	// Exact counts: check-values.md §1.4, reproduced from Table 1 by its
+	// Exact counts: worked out here from Table 1 of Howard et al. 2017
+	// (arXiv:1704.04861) by its
 	// counting convention (MACs of conv, depthwise, pointwise and FC only;
 	// parameters = weights + FC bias). Published figures: Tables 6 and 7 of
 	// Howard et al. 2017 in millions (MACs) — the paper rounds some rows
@@ -84,7 +86,9 @@ func TestCostMobileNet(t *testing.T) {
 				t.Errorf("parameters %.1f M, published %.1f M", got, c.publishedParam)
 			}
 			if c.alpha == 1 && c.res == 224 {
-				// With γ and β: 4,231,976 (check-values.md §1.4 [D]).
+				// With γ and β of the 10,944 batch-normalised channels:
+				// 4,231,976 (derived here; with the two moving statistics as
+				// well it is the 4.25 M of Krishnamoorthi 2018, Table 1).
 				if r.Params != 4_231_976 {
 					t.Errorf("parameters with batch norm γ, β = %d, want 4231976", r.Params)
 				}
@@ -96,13 +100,14 @@ func TestCostMobileNet(t *testing.T) {
 func TestCostSeparableRatio(t *testing.T) {
 	// Howard et al. 2017 §3.1: depthwise separable / standard cost =
 	// 1/N + 1/D_K²; Table 3 (D_K = 3, M = N = 512, D_F = 14): 462,422,016
-	// and 52,283,392 mult-adds exactly (check-values.md §1.4).
+	// and 52,283,392 mult-adds exactly (the printed 462 and 52.3 million,
+	// counted here from the paper's cost formulas, eqs. 2 and 5).
 	in := Shape{14, 14, 512}
-	std, err := FromSpec("conv filters=512 kernel=3 pad=same bias=false", in, 1)
+	std, err := FromSpec("conv out=512 kernel=3 pad=same bias=false", in, 1)
 	if err != nil {
 		t.Fatal(err)
 	}
-	sep, err := FromSpec("depthwise kernel=3 pad=same bias=false\npointwise filters=512 bias=false", in, 1)
+	sep, err := FromSpec("depthwise kernel=3 pad=same bias=false\npointwise out=512 bias=false", in, 1)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -8,33 +8,34 @@ import (
 
 // Dense is a fully connected layer on the flattened sample:
 // out[n][o] = Bias[o] + Σ_i x[n][i]·Weight[o][i], with i running over the
-// H·W·C input values in channels-last order. Its output shape is 1×1×Units.
+// H·W·C input values in channels-last order. Its output shape is 1×1×Out.
 type Dense struct {
-	units            int
+	units            int // Out
 	in               int
-	Weight           []float32 // (Units, In), view into Params.Data
-	Bias             []float32 // (Units)
+	Weight           []float32 // (Out, In), view into Params.Data
+	Bias             []float32 // (Out)
 	WeightGrad       []float32
 	BiasGrad         []float32
 	grads            shardGrads
 	x, out, dx, dout []float32
 }
 
-// NewDense returns a fully connected layer with units outputs and a bias.
-func NewDense(units int) *Dense { return &Dense{units: units} }
+// NewDense returns a fully connected layer with out outputs and a bias
+// (spec: dense out=N).
+func NewDense(out int) *Dense { return &Dense{units: out} }
 
 // Kind implements Layer.
 func (l *Dense) Kind() string { return "dense" }
 
 // Spec implements Layer.
-func (l *Dense) Spec() string { return fmt.Sprintf("dense units=%d", l.units) }
+func (l *Dense) Spec() string { return fmt.Sprintf("dense out=%d", l.units) }
 
-// Units returns the output width.
-func (l *Dense) Units() int { return l.units }
+// Out returns the output width.
+func (l *Dense) Out() int { return l.units }
 
 func (l *Dense) setup(in Shape) (Shape, error) {
 	if l.units < 1 {
-		return Shape{}, shapeErr("dense: %d units", l.units)
+		return Shape{}, shapeErr("dense: out=%d, want at least 1", l.units)
 	}
 	l.in = in.Size()
 	return Shape{1, 1, l.units}, nil
@@ -57,7 +58,7 @@ func (l *Dense) plan(n int) { l.grads.plan(shardCount(n), len(l.Weight), len(l.B
 
 func (l *Dense) macs() int64 { return int64(l.in) * int64(l.units) }
 
-// forward: x is (N, In); out is (N, Units).
+// forward: x is (N, In); out is (N, Out).
 func (l *Dense) forward(p *Pass, out, x []float32, n int) {
 	l.x, l.out = x, out
 	p.exec.run(l, phaseForward, n)

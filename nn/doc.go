@@ -23,7 +23,7 @@
 //
 //	convolution, pointwise   (OutC, KH, KW, InC)
 //	depthwise                (KH, KW, C)
-//	dense                    (Units, In), In in NHWC order of the input
+//	dense                    (Out, In), In in NHWC order of the input
 //
 // # Layer spec
 //
@@ -33,10 +33,10 @@
 // fixes the input. Sizes are N or HxW (N means NxN).
 //
 //	input         shape=HxWxC
-//	conv          filters=N kernel=KHxKW [stride=SHxSW] [pad=P] [bias=true|false]
+//	conv          out=N kernel=KHxKW [stride=SHxSW] [pad=P] [bias=true|false]
 //	depthwise     kernel=KHxKW [stride=SHxSW] [pad=P] [bias=true|false]
-//	pointwise     filters=N [bias=true|false]
-//	dense         units=N
+//	pointwise     out=N [bias=true|false]
+//	dense         out=N
 //	batchnorm     [momentum=0.1] [eps=1e-5]
 //	relu | relu6 | relucap max=X
 //	maxpool       size=KHxKW [stride=SHxSW] [pad=P]     (stride defaults to size)

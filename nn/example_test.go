@@ -11,11 +11,11 @@ import (
 // architecture would.
 func ExampleFromSpec() {
 	spec := `input shape=40x61x1
-conv filters=8 kernel=3 stride=2 pad=same bias=false
+conv out=8 kernel=3 stride=2 pad=same bias=false
 batchnorm
 relu
 globalavgpool
-dense units=4
+dense out=4
 `
 	net, err := nn.FromSpec(spec, nn.Shape{}, 1)
 	if err != nil {
@@ -47,7 +47,7 @@ func ExampleCost() {
 // Train a tiny classifier on synthetic data: class 0 images are dark,
 // class 1 bright.
 func Example_trainTiny() {
-	net, _ := nn.FromSpec("input shape=4x4x1\nconv filters=4 kernel=3 pad=same\nrelu\nglobalavgpool\ndense units=2", nn.Shape{}, 1)
+	net, _ := nn.FromSpec("input shape=4x4x1\nconv out=4 kernel=3 pad=same\nrelu\nglobalavgpool\ndense out=2", nn.Shape{}, 1)
 	defer net.Close()
 	tr, err := nn.NewTrainer(net, &nn.SoftmaxCrossEntropy{Classes: 2}, nn.OptimizerConfig{Kind: nn.OptAdam}, nn.Schedule{Base: 0.05}, 1)
 	if err != nil {

@@ -27,15 +27,15 @@ type FitConfig struct {
 
 // EpochStats reports one epoch of [Fit].
 type EpochStats struct {
-	Epoch      int     `json:"epoch"` // 1-based
-	Loss       float64 `json:"loss"`
-	Accuracy   float64 `json:"accuracy"`
-	ValLoss    float64 `json:"val_loss"`
-	ValAcc     float64 `json:"val_accuracy"`
-	LR         float64 `json:"lr"`
+	Epoch      int     `json:"epoch"`          // 1-based
+	Loss       float64 `json:"train_loss"`     // mean over the epoch's samples
+	Accuracy   float64 `json:"train_accuracy"` // fraction of training samples right
+	ValLoss    float64 `json:"val_fold_loss"`
+	ValAcc     float64 `json:"val_fold_accuracy"`
+	LR         float64 `json:"learning_rate"`
 	Seconds    float64 `json:"seconds"`
 	SamplesSec float64 `json:"samples_per_second"`
-	Best       bool    `json:"best"` // best validation score so far
+	Best       bool    `json:"best_so_far"` // best validation score so far
 }
 
 // FitProgress is called after every training step with the epoch

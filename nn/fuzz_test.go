@@ -11,8 +11,8 @@ func FuzzParseSpec(f *testing.F) {
 		s, _ := ArchSpec(name, 4)
 		f.Add(s)
 	}
-	f.Add("conv filters=3 kernel=3x3 stride=2 pad=1,1,1,1\nrelu # c\n")
-	f.Add("input shape=1x1x1\ndense units=1")
+	f.Add("conv out=3 kernel=3x3 stride=2 pad=1,1,1,1\nrelu # c\n")
+	f.Add("input shape=1x1x1\ndense out=1")
 	f.Add("maxpool size=99999999999")
 	f.Add("")
 	f.Fuzz(func(t *testing.T, text string) {
@@ -54,7 +54,7 @@ func FuzzParseCheckpoint(f *testing.F) {
 	f.Add([]byte("PIPITCKP\x01\x00\x00\x00\xff\xff\xff\xff"))
 	f.Add([]byte{})
 	f.Fuzz(func(t *testing.T, data []byte) {
-		ck, err := ParseCheckpoint("fuzz.ckpt", data)
+		ck, err := ParseCheckpoint("fuzz.pnet", data)
 		if err != nil {
 			return
 		}

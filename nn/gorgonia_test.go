@@ -46,7 +46,7 @@ func TestLayersAgainstGorgonia(t *testing.T) {
 		{
 			name: "conv 3x3 stride 2 pad 1", in: Shape{7, 9, 3}, n: 2,
 			layer: func() Layer {
-				return NewConv2D(Conv2DConfig{Filters: 4, KH: 3, KW: 3, SH: 2, SW: 2, Pad: Padding{Mode: PadExplicit, Top: 1, Bottom: 1, Left: 1, Right: 1}})
+				return NewConv2D(Conv2DConfig{Out: 4, KH: 3, KW: 3, SH: 2, SW: 2, Pad: Padding{Mode: PadExplicit, Top: 1, Bottom: 1, Left: 1, Right: 1}})
 			},
 			graph: func(g *G.ExprGraph, x *G.Node, l Layer) (*G.Node, []*G.Node) {
 				c := l.(*Conv2D)
@@ -60,7 +60,7 @@ func TestLayersAgainstGorgonia(t *testing.T) {
 		{
 			name: "conv 3x2 stride 1x2 valid", in: Shape{6, 8, 2}, n: 3,
 			layer: func() Layer {
-				return NewConv2D(Conv2DConfig{Filters: 3, KH: 3, KW: 2, SH: 1, SW: 2, Pad: Padding{Mode: PadValid}})
+				return NewConv2D(Conv2DConfig{Out: 3, KH: 3, KW: 2, SH: 1, SW: 2, Pad: Padding{Mode: PadValid}})
 			},
 			graph: func(g *G.ExprGraph, x *G.Node, l Layer) (*G.Node, []*G.Node) {
 				c := l.(*Conv2D)

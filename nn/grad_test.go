@@ -103,11 +103,11 @@ func TestLayerGradients(t *testing.T) {
 		n     int
 		train bool
 	}{
-		{"conv 3x3 same", func() Layer { return NewConv2D(Conv2DConfig{Filters: 4, KH: 3, KW: 3, Pad: same, Bias: true}) }, Shape{5, 6, 3}, 3, true},
+		{"conv 3x3 same", func() Layer { return NewConv2D(Conv2DConfig{Out: 4, KH: 3, KW: 3, Pad: same, Bias: true}) }, Shape{5, 6, 3}, 3, true},
 		{"conv 3x2 stride 2x1 valid", func() Layer {
-			return NewConv2D(Conv2DConfig{Filters: 3, KH: 3, KW: 2, SH: 2, SW: 1, Pad: valid, Bias: true})
+			return NewConv2D(Conv2DConfig{Out: 3, KH: 3, KW: 2, SH: 2, SW: 1, Pad: valid, Bias: true})
 		}, Shape{7, 5, 2}, 2, true},
-		{"conv explicit pad stride 2", func() Layer { return NewConv2D(Conv2DConfig{Filters: 2, KH: 3, KW: 3, SH: 2, SW: 2, Pad: expl}) }, Shape{6, 7, 2}, 2, true},
+		{"conv explicit pad stride 2", func() Layer { return NewConv2D(Conv2DConfig{Out: 2, KH: 3, KW: 3, SH: 2, SW: 2, Pad: expl}) }, Shape{6, 7, 2}, 2, true},
 		{"pointwise", func() Layer { return NewPointwise(5, true) }, Shape{3, 4, 3}, 3, true},
 		{"depthwise 3x3 s2 same", func() Layer { return NewDepthwise(DepthwiseConfig{KH: 3, KW: 3, SH: 2, SW: 2, Pad: same, Bias: true}) }, Shape{7, 6, 3}, 2, true},
 		{"depthwise 2x3 valid", func() Layer { return NewDepthwise(DepthwiseConfig{KH: 2, KW: 3, Pad: valid}) }, Shape{5, 5, 2}, 2, true},

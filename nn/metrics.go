@@ -34,16 +34,16 @@ func NewConfusion(classes int, labels, preds []int) (*Confusion, error) {
 // ClassMetrics are one class's figures. A ratio with a zero denominator is
 // 0 (scikit-learn's zero_division=0 convention).
 type ClassMetrics struct {
-	Precision float64 `json:"precision"`
+	Labelled  int     `json:"labelled"` // samples whose true class this is
 	Recall    float64 `json:"recall"`
+	Precision float64 `json:"precision"`
 	F1        float64 `json:"f1"`
-	Support   int     `json:"support"` // true samples of the class
 }
 
 // Metrics summarise a confusion matrix.
 type Metrics struct {
 	Accuracy         float64        `json:"accuracy"`
-	BalancedAccuracy float64        `json:"balanced_accuracy"` // mean recall over classes with support
+	BalancedAccuracy float64        `json:"balanced_accuracy"` // mean recall over classes that occur in the truth
 	MacroF1          float64        `json:"macro_f1"`          // mean F1 over all classes
 	PerClass         []ClassMetrics `json:"per_class"`
 	Samples          int            `json:"samples"`
@@ -73,13 +73,13 @@ func (c *Confusion) Metrics() Metrics {
 		}
 		return float64(a) / float64(b)
 	}
-	withSupport := 0
+	present := 0
 	for k := 0; k < L; k++ {
 		row := 0
 		for p := 0; p < L; p++ {
 			row += c.Counts[k][p]
 		}
-		cm := ClassMetrics{Precision: ratio(c.Counts[k][k], colSum[k]), Recall: ratio(c.Counts[k][k], row), Support: row}
+		cm := ClassMetrics{Precision: ratio(c.Counts[k][k], colSum[k]), Recall: ratio(c.Counts[k][k], row), Labelled: row}
 		if cm.Precision+cm.Recall > 0 {
 			cm.F1 = 2 * cm.Precision * cm.Recall / (cm.Precision + cm.Recall)
 		}
@@ -87,11 +87,11 @@ func (c *Confusion) Metrics() Metrics {
 		m.MacroF1 += cm.F1 / float64(L)
 		if row > 0 {
 			m.BalancedAccuracy += cm.Recall
-			withSupport++
+			present++
 		}
 	}
-	if withSupport > 0 {
-		m.BalancedAccuracy /= float64(withSupport)
+	if present > 0 {
+		m.BalancedAccuracy /= float64(present)
 	}
 	return m
 }

@@ -41,6 +41,9 @@ func TestMetricsWorkedExample(t *testing.T) {
 	near("macro F1", m.MacroF1, 0.689744)
 	want := [][3]float64{{0.714286, 0.833333, 0.769231}, {0.5, 0.5, 0.5}, {0.857143, 0.75, 0.8}}
 	for k, w := range want {
+		if got := m.PerClass[k].Labelled; got != []int{6, 6, 8}[k] { // row sums above
+			t.Errorf("class %d: %d labelled, want %d", k, got, []int{6, 6, 8}[k])
+		}
 		near("precision", m.PerClass[k].Precision, w[0])
 		near("recall", m.PerClass[k].Recall, w[1])
 		near("F1", m.PerClass[k].F1, w[2])

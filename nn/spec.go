@@ -47,15 +47,15 @@ func ParseSpec(text string) (layers []Layer, in Shape, ok bool, err error) {
 		case "conv":
 			kh, kw := a.pair("kernel", 0)
 			sh, sw := a.pair("stride", 1)
-			l = NewConv2D(Conv2DConfig{Filters: a.int("filters", 0), KH: kh, KW: kw, SH: sh, SW: sw, Pad: a.pad(), Bias: a.bool("bias", true)})
+			l = NewConv2D(Conv2DConfig{Out: a.int("out", 0), KH: kh, KW: kw, SH: sh, SW: sw, Pad: a.pad(), Bias: a.bool("bias", true)})
 		case "pointwise":
-			l = NewPointwise(a.int("filters", 0), a.bool("bias", true))
+			l = NewPointwise(a.int("out", 0), a.bool("bias", true))
 		case "depthwise":
 			kh, kw := a.pair("kernel", 0)
 			sh, sw := a.pair("stride", 1)
 			l = NewDepthwise(DepthwiseConfig{KH: kh, KW: kw, SH: sh, SW: sw, Pad: a.pad(), Bias: a.bool("bias", true)})
 		case "dense":
-			l = NewDense(a.int("units", 0))
+			l = NewDense(a.int("out", 0))
 		case "batchnorm":
 			l = NewBatchNorm(a.float("momentum", 0.1), a.float("eps", 1e-5))
 		case "relu":

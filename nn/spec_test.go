@@ -29,15 +29,15 @@ func TestSpecShapes(t *testing.T) {
 	// floor((in-k)/s)+1; explicit padding adds to the input first.
 	spec := `# a comment line
 input shape=40x61x1
-conv filters=8 kernel=3x5 stride=2x3 pad=same   # 20x21x8
+conv out=8 kernel=3x5 stride=2x3 pad=same   # 20x21x8
 maxpool size=2 stride=2                          # 10x10x8
 depthwise kernel=3 pad=1,1,0,2                    # (10+2-3)+1=10, (10+2-3)+1=10
 avgpool size=3x2 stride=1 pad=valid               # 8x9x8
-pointwise filters=4 bias=false                    # 8x9x4
+pointwise out=4 bias=false                    # 8x9x4
 relu6
 dropout rate=0.5
 flatten                                           # 1x1x288
-dense units=3
+dense out=3
 `
 	net, err := FromSpec(spec, Shape{}, 1)
 	if err != nil {
@@ -54,17 +54,17 @@ dense units=3
 
 func TestSpecErrors(t *testing.T) {
 	cases := map[string]string{
-		"unknown layer":      "convolve filters=3",
-		"missing filters":    "conv kernel=3",
-		"bad kernel":         "conv filters=3 kernel=0",
-		"bad pair":           "conv filters=3 kernel=3x3x3",
+		"unknown layer":      "convolve out=3",
+		"missing out":        "conv kernel=3",
+		"bad kernel":         "conv out=3 kernel=0",
+		"bad pair":           "conv out=3 kernel=3x3x3",
 		"not key=value":      "conv 16",
 		"unknown argument":   "relu slope=0.1",
-		"duplicate argument": "dense units=3 units=4",
-		"bad pad":            "conv filters=1 kernel=3 pad=big",
+		"duplicate argument": "dense out=3 out=4",
+		"bad pad":            "conv out=1 kernel=3 pad=big",
 		"input twice":        "input shape=2x2x1\ninput shape=2x2x1\nrelu",
 		"no layers":          "# nothing\n",
-		"bad bool":           "pointwise filters=2 bias=maybe",
+		"bad bool":           "pointwise out=2 bias=maybe",
 	}
 	for name, spec := range cases {
 		_, _, _, err := ParseSpec(spec)
@@ -73,15 +73,15 @@ func TestSpecErrors(t *testing.T) {
 		}
 	}
 	var se *SpecError
-	_, _, _, err := ParseSpec("relu\nconv filters=x kernel=3")
+	_, _, _, err := ParseSpec("relu\nconv out=x kernel=3")
 	if !errors.As(err, &se) || se.Line != 2 || !strings.Contains(err.Error(), "line 2") {
 		t.Errorf("error %v does not name line 2", err)
 	}
 	// Shapes that cannot be planned are ErrShape from FromSpec.
-	if _, err := FromSpec("conv filters=2 kernel=5", Shape{3, 3, 1}, 1); !errors.Is(err, ErrShape) {
+	if _, err := FromSpec("conv out=2 kernel=5", Shape{3, 3, 1}, 1); !errors.Is(err, ErrShape) {
 		t.Errorf("kernel larger than input: error %v, want ErrShape", err)
 	}
-	if _, err := FromSpec("dense units=3", Shape{}, 1); !errors.Is(err, ErrShape) {
+	if _, err := FromSpec("dense out=3", Shape{}, 1); !errors.Is(err, ErrShape) {
 		t.Errorf("no input shape: error %v", err)
 	}
 }

@@ -34,15 +34,15 @@ func quadrantTask(rng *rand.Rand, n int) ([]float32, []int) {
 }
 
 const tinySpec = `input shape=8x8x1
-conv filters=8 kernel=3 pad=same bias=false
+conv out=8 kernel=3 pad=same bias=false
 batchnorm
 relu
 maxpool size=2
-conv filters=16 kernel=3 pad=same
+conv out=16 kernel=3 pad=same
 relu
 dropout rate=0.1
 globalavgpool
-dense units=4
+dense out=4
 `
 
 func newTinyTrainer(t testing.TB, seed uint64) *Trainer {
@@ -159,7 +159,7 @@ func TestDeterministicAcrossGOMAXPROCS(t *testing.T) {
 
 func TestCheckpointResumeBitIdentical(t *testing.T) {
 	dir := t.TempDir()
-	path := filepath.Join(dir, "run.ckpt")
+	path := filepath.Join(dir, "run.pnet")
 	ref := newTinyTrainer(t, 5)
 	want := trainSteps(t, ref, 0, 30)
 	ref.Net.Close()
@@ -210,7 +210,7 @@ func TestCheckpointDamage(t *testing.T) {
 		"version":   {badVersion, ErrUnsupportedVersion},
 	}
 	for name, c := range cases {
-		_, err := ParseCheckpoint("x.ckpt", c.data)
+		_, err := ParseCheckpoint("x.pnet", c.data)
 		if err == nil {
 			t.Errorf("%s: no error", name)
 			continue
@@ -218,12 +218,12 @@ func TestCheckpointDamage(t *testing.T) {
 		if c.is != nil && !errors.Is(err, c.is) {
 			t.Errorf("%s: error %v, want %v", name, err, c.is)
 		}
-		if !bytes.Contains([]byte(err.Error()), []byte("x.ckpt")) {
+		if !bytes.Contains([]byte(err.Error()), []byte("x.pnet")) {
 			t.Errorf("%s: error %q does not name the file", name, err)
 		}
 	}
 	// Loading into a different network is a mismatch, into the same one works.
-	p0 := filepath.Join(t.TempDir(), "w.ckpt")
+	p0 := filepath.Join(t.TempDir(), "w.pnet")
 	os.WriteFile(p0, good, 0o644)
 	other, _ := Arch("separable", 4, 1)
 	defer other.Close()
@@ -237,9 +237,9 @@ func TestCheckpointDamage(t *testing.T) {
 	}
 	// Writing over an existing file is atomic: a failed write keeps it.
 	dir := t.TempDir()
-	p := filepath.Join(dir, "a.ckpt")
+	p := filepath.Join(dir, "a.pnet")
 	os.WriteFile(p, good, 0o644)
-	if err := tr.WriteCheckpoint(filepath.Join(dir, "missing", "b.ckpt"), nil); err == nil {
+	if err := tr.WriteCheckpoint(filepath.Join(dir, "missing", "b.pnet"), nil); err == nil {
 		t.Error("write into a missing directory gave no error")
 	}
 }

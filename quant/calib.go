@@ -6,7 +6,7 @@ import (
 	"sort"
 )
 
-// Calibration methods (observers of activation ranges).
+// Calibration methods: how an activation range is chosen from the values seen.
 const (
 	MethodMinMax     = "minmax"     // the observed minimum and maximum
 	MethodPercentile = "percentile" // the 0.01 % and 99.99 % quantiles (Percentile)

@@ -1,6 +1,6 @@
 // Package quant turns a trained float network into an int8 network whose
 // every arithmetic step is integer, and measures what that costs: batch
-// norm folding, calibration observers, per-channel weight quantisation,
+// norm folding, calibration of activation ranges, per-channel weight quantisation,
 // fixed-point requantisation, the integer-only reference engine, overflow
 // checks and per-layer SQNR.
 //
@@ -16,8 +16,8 @@
 // channel by default, per tensor as an option. Bias: int32 with scale
 // input_scale·weight_scale[c]. Each output channel's real multiplier
 // M = input_scale·weight_scale[c]/output_scale is a 32-bit mantissa and a
-// shift ([QuantizeMultiplier]); requantisation is
-// RoundingDivideByPOT(SaturatingRoundingDoublingHighMul(acc, m0), shift)
+// shift ([EncodeRescale]); requantisation is
+// ShiftRightRound(MulQ31Round(acc, m0), shift)
 // + output_zero_point, saturated to the fused activation's clamp (ReLU:
 // [zp, 127], ReLU6: [zp, q(6)]). Rounding of real values to integers
 // (weights, biases, activations, the mantissa) is half away from zero
@@ -59,6 +59,6 @@
 //
 // # Errors
 //
-// Networks with layers or orders the engine does not support, and
+// Networks with layers or orders the engine does not handle, and
 // calibration that yields unusable ranges, are errors naming the layer.
 package quant

@@ -9,12 +9,12 @@ import (
 // The integer-only engine. Every kernel below takes and returns integer
 // slices only (int8 activations and weights, int32 bias, multipliers and
 // shifts); accumulation is int32 (int64 only inside the fixed-point
-// multiply, as in gemmlowp). Layout is channels-last as in package nn.
+// multiply, as in Jacob et al. 2018). Layout is channels-last as in package nn.
 
 // requant maps an int32 accumulator to int8 with multiplier (m0, shift),
 // output zero point zp and clamp [lo, hi].
 func requant(acc, m0, shift, zp, lo, hi int32) int8 {
-	v := MultiplyByQuantizedMultiplier(acc, m0, int(shift)) + zp
+	v := Rescale(acc, m0, int(shift)) + zp
 	if v < lo {
 		v = lo
 	} else if v > hi {

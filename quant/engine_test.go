@@ -12,8 +12,8 @@ func TestKernelsAreIntegerOnly(t *testing.T) {
 	kernels := map[string]any{
 		"convInt8": convInt8, "depthwiseInt8": depthwiseInt8, "denseInt8": denseInt8,
 		"poolInt8": poolInt8, "globalAvgPoolInt8": globalAvgPoolInt8, "requant": requant, "roundDiv": roundDiv,
-		"SaturatingRoundingDoublingHighMul": SaturatingRoundingDoublingHighMul, "RoundingDivideByPOT": RoundingDivideByPOT,
-		"MultiplyByQuantizedMultiplier": MultiplyByQuantizedMultiplier,
+		"MulQ31Round": MulQ31Round, "ShiftRightRound": ShiftRightRound,
+		"Rescale": Rescale,
 	}
 	var hasFloat func(reflect.Type) bool
 	hasFloat = func(t reflect.Type) bool {

@@ -33,16 +33,16 @@ func ExampleQuantize() {
 
 // Represent a real rescale factor as a fixed-point multiplier and apply it
 // to an accumulator the way an integer runtime does.
-func ExampleQuantizeMultiplier() {
-	m0, shift, _ := quant.QuantizeMultiplier(0.01) // 0.02·0.05/0.1
-	fmt.Println(m0, shift, quant.MultiplyByQuantizedMultiplier(12345, m0, shift))
+func ExampleEncodeRescale() {
+	m0, shift, _ := quant.EncodeRescale(0.01) // 0.02·0.05/0.1
+	fmt.Println(m0, shift, quant.Rescale(12345, m0, shift))
 	// Output:
 	// 1374389535 6 123
 }
 
 // Export a quantised network for a device: blob, scheme and C header.
 func ExampleExport() {
-	net, _ := nn.FromSpec("input shape=8x8x1\nconv filters=4 kernel=3 pad=same\nrelu\nglobalavgpool\ndense units=2", nn.Shape{}, 1)
+	net, _ := nn.FromSpec("input shape=8x8x1\nconv out=4 kernel=3 pad=same\nrelu\nglobalavgpool\ndense out=2", nn.Shape{}, 1)
 	defer net.Close()
 	x := make([]float32, 4*64)
 	for i := range x {

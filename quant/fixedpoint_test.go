@@ -8,10 +8,11 @@ import (
 )
 
 func TestFixedPointWorkedExamples(t *testing.T) {
-	// check-values.md §3.3, derived from gemmlowp fixedpoint.h's
-	// definitions: SRDHM(a, b) = ⌊(a·b + 2^30)/2^31⌋ (ties toward +∞),
-	// saturating (−2^31)·(−2^31).
-	srdhm := []struct{ a, b, want int32 }{
+	// Worked by hand from the definition of the rounding high multiply in
+	// google/gemmlowp fixedpoint/fixedpoint.h (the reference code of
+	// Jacob et al. 2018): MulQ31Round(a, b) = ⌊(a·b + 2^30)/2^31⌋ (ties
+	// toward +∞), saturating (−2^31)·(−2^31).
+	mul := []struct{ a, b, want int32 }{
 		{math.MinInt32, math.MinInt32, math.MaxInt32}, // saturated
 		{math.MinInt32, math.MaxInt32, -2147483647},
 		{math.MaxInt32, math.MaxInt32, 2147483646},
@@ -23,15 +24,17 @@ func TestFixedPointWorkedExamples(t *testing.T) {
 		{1, 1, 0},                   // 4.66e−10
 		{1000, 1288490189, 600},     // 1000·0.6 = 600.0000000931
 	}
-	for _, c := range srdhm {
-		if got := SaturatingRoundingDoublingHighMul(c.a, c.b); got != c.want {
-			t.Errorf("SRDHM(%d, %d) = %d, want %d", c.a, c.b, got, c.want)
+	for _, c := range mul {
+		if got := MulQ31Round(c.a, c.b); got != c.want {
+			t.Errorf("MulQ31Round(%d, %d) = %d, want %d", c.a, c.b, got, c.want)
 		}
 	}
-	// RDBPOT: round half away from zero. RDBPOT(−12, 3): −12 >> 3 = −2,
+	// ShiftRightRound: round half away from zero (the rule of the same
+	// gemmlowp file's rounding right shift, which its test
+	// test/test_fixedpoint.cc checks against std::round(x / 2^s)). ShiftRightRound(−12, 3): −12 >> 3 = −2,
 	// remainder −12 & 7 = 4, threshold 3 + 1 = 4, 4 > 4 false → −2
 	// (Jacob et al. 2018 App. B: −12/2^3 "should be −2").
-	rdbpot := []struct {
+	shr := []struct {
 		x    int32
 		e    int
 		want int32
@@ -40,16 +43,20 @@ func TestFixedPointWorkedExamples(t *testing.T) {
 		{5, 1, 3}, {-5, 1, -3}, {601, 1, 301}, {-601, 1, -301},
 		{12345, 0, 12345}, {math.MinInt32, 31, -1}, {math.MaxInt32, 31, 1}, {math.MaxInt32, 1, 1073741824},
 	}
-	for _, c := range rdbpot {
-		if got := RoundingDivideByPOT(c.x, c.e); got != c.want {
-			t.Errorf("RDBPOT(%d, %d) = %d, want %d", c.x, c.e, got, c.want)
+	for _, c := range shr {
+		if got := ShiftRightRound(c.x, c.e); got != c.want {
+			t.Errorf("ShiftRightRound(%d, %d) = %d, want %d", c.x, c.e, got, c.want)
 		}
 	}
 }
 
-func TestQuantizeMultiplierWorkedExamples(t *testing.T) {
-	// check-values.md §3.4 (double column) and §2.5 example 1:
-	// M = 0.02·0.05/0.1 = 0.01 = 0.64·2^−6 → (round(0.64·2^31) = 1374389535, 6).
+func TestEncodeRescaleWorkedExamples(t *testing.T) {
+	// Mantissa and shift of Jacob et al. 2018 eq. 6 (M = 2^−n·M0,
+	// M0 ∈ [0.5, 1), m0 = round(2^31·M0)), worked by hand in float64 for
+	// each M below; they agree with the double-precision version of the
+	// multiplier helper in google/gemmlowp doc/quantization_example.cc.
+	// With eq. 5: M = 0.02·0.05/0.1 = 0.01 = 0.64·2^−6 →
+	// (round(0.64·2^31) = 1374389535, 6).
 	cases := []struct {
 		m     float64
 		q     int32
@@ -61,38 +68,39 @@ func TestQuantizeMultiplierWorkedExamples(t *testing.T) {
 		{0.02 * 0.05 / 0.1, 1374389535, 6},
 		// beyond the table: M ≥ 1 gives a left shift
 		{3.0, 1610612736, -2},
-		// 0.9999999999 rounds to 2^31: halved, shift −1 (the table's
-		// "fails the s ≥ 0 assert" case, which pipit represents).
+		// 0.9999999999 rounds to 2^31: halved, shift −1 (gemmlowp's
+		// helper asserts s ≥ 0 and rejects it; pipit represents it).
 		{0.9999999999, 1 << 30, -1},
 	}
 	for _, c := range cases {
-		q, s, err := QuantizeMultiplier(c.m)
+		q, s, err := EncodeRescale(c.m)
 		if err != nil || q != c.q || s != c.shift {
-			t.Errorf("QuantizeMultiplier(%g) = (%d, %d, %v), want (%d, %d)", c.m, q, s, err, c.q, c.shift)
+			t.Errorf("EncodeRescale(%g) = (%d, %d, %v), want (%d, %d)", c.m, q, s, err, c.q, c.shift)
 		}
 	}
-	// Example 2 of check-values.md §2.5: acc·0.01 requantised with
-	// Z_y = −128: 12345 → 7901 → −5; −12345 → −251 (saturates to −128 later);
-	// 50 → 32 → −127; −50 → −32 → −129.
-	q, s, _ := QuantizeMultiplier(0.01)
-	for _, c := range []struct{ acc, srdhm, out int32 }{{12345, 7901, -5}, {-12345, -7901, -251}, {50, 32, -127}, {-50, -32, -129}} {
-		if got := SaturatingRoundingDoublingHighMul(c.acc, q); got != c.srdhm {
-			t.Errorf("SRDHM(%d, M0) = %d, want %d", c.acc, got, c.srdhm)
+	// Worked by hand from eqs. 5–6 of Jacob et al. 2018 and the two
+	// definitions above: acc·0.01 requantised with Z_y = −128:
+	// 12345 → 7901 → −5; −12345 → −251 (saturates to −128 later);
+	// 50 → 32 → −127; −50 → −32 → −129 (half away from zero in the shift).
+	q, s, _ := EncodeRescale(0.01)
+	for _, c := range []struct{ acc, high, out int32 }{{12345, 7901, -5}, {-12345, -7901, -251}, {50, 32, -127}, {-50, -32, -129}} {
+		if got := MulQ31Round(c.acc, q); got != c.high {
+			t.Errorf("MulQ31Round(%d, M0) = %d, want %d", c.acc, got, c.high)
 		}
-		if got := MultiplyByQuantizedMultiplier(c.acc, q, s) - 128; got != c.out {
+		if got := Rescale(c.acc, q, s) - 128; got != c.out {
 			t.Errorf("requantise(%d) = %d, want %d", c.acc, got, c.out)
 		}
 	}
 	for _, bad := range []float64{0, -1, math.NaN(), math.Inf(1), 1e-20, 1e9} {
-		if _, _, err := QuantizeMultiplier(bad); err == nil {
-			t.Errorf("QuantizeMultiplier(%g) gave no error", bad)
+		if _, _, err := EncodeRescale(bad); err == nil {
+			t.Errorf("EncodeRescale(%g) gave no error", bad)
 		}
 	}
 }
 
 // TestFixedPointAgainstBigInt checks both helpers on random and edge inputs
-// against exact rational arithmetic (math/big): SRDHM against
-// floor((a·b + 2^30) / 2^31), RDBPOT against round-half-away(x / 2^e).
+// against exact rational arithmetic (math/big): MulQ31Round against
+// floor((a·b + 2^30) / 2^31), ShiftRightRound against round-half-away(x / 2^e).
 func TestFixedPointAgainstBigInt(t *testing.T) {
 	rng := rand.New(rand.NewPCG(1, 2))
 	edges := []int32{0, 1, -1, 2, -2, math.MaxInt32, math.MinInt32, math.MaxInt32 - 1, math.MinInt32 + 1, 1 << 30, -(1 << 30)}
@@ -112,8 +120,8 @@ func TestFixedPointAgainstBigInt(t *testing.T) {
 		if a == math.MinInt32 && b == math.MinInt32 {
 			want.SetInt64(math.MaxInt32)
 		}
-		if got := SaturatingRoundingDoublingHighMul(a, b); int64(got) != want.Int64() {
-			t.Fatalf("SRDHM(%d, %d) = %d, exact %s", a, b, got, want)
+		if got := MulQ31Round(a, b); int64(got) != want.Int64() {
+			t.Fatalf("MulQ31Round(%d, %d) = %d, exact %s", a, b, got, want)
 		}
 		x, e := vals(), rng.IntN(32)
 		r := new(big.Rat).SetFrac(big.NewInt(int64(x)), new(big.Int).Lsh(big.NewInt(1), uint(e)))
@@ -124,8 +132,8 @@ func TestFixedPointAgainstBigInt(t *testing.T) {
 		if r.Sign() < 0 {
 			fl.Neg(fl)
 		}
-		if got := RoundingDivideByPOT(x, e); int64(got) != fl.Int64() {
-			t.Fatalf("RDBPOT(%d, %d) = %d, exact %s", x, e, got, fl)
+		if got := ShiftRightRound(x, e); int64(got) != fl.Int64() {
+			t.Fatalf("ShiftRightRound(%d, %d) = %d, exact %s", x, e, got, fl)
 		}
 	}
 }

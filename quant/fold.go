@@ -70,7 +70,7 @@ func Fold(net *nn.Network) ([]FloatLayer, error) {
 		var fl FloatLayer
 		switch v := l.(type) {
 		case *nn.Conv2D:
-			fl = FloatLayer{Op: OpConv, Geom: v.Geometry(), Weight: append([]float32(nil), v.Weight...), Bias: biasOrZero(v.Bias, v.Config().Filters)}
+			fl = FloatLayer{Op: OpConv, Geom: v.Geometry(), Weight: append([]float32(nil), v.Weight...), Bias: biasOrZero(v.Bias, v.Config().Out)}
 		case *nn.Depthwise:
 			g := v.Geometry()
 			fl = FloatLayer{Op: OpDepthwise, Geom: g, Weight: append([]float32(nil), v.Weight...), Bias: biasOrZero(v.Bias, g.C)}

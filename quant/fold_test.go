@@ -60,9 +60,10 @@ func TestFoldMatchesNetwork(t *testing.T) {
 		}
 		net.Close()
 	}
-	// Krishnamoorthi 2018 BN-folding example (check-values.md §4.1):
+	// Batch-norm folding of Krishnamoorthi 2018 (arXiv:1806.08342), eqs.
+	// 20–21, W' = γW/σ and b' = β − γμ/σ, worked by hand:
 	// γ = 2, σ = 4 (var 16, ε → 0), μ = 1, β = 0.5, W = 3 → W' = 1.5, b' = 0.
-	net, _ := nn.FromSpec("input shape=1x1x1\ndense units=1\nbatchnorm eps=1e-12", nn.Shape{}, 1)
+	net, _ := nn.FromSpec("input shape=1x1x1\ndense out=1\nbatchnorm eps=1e-12", nn.Shape{}, 1)
 	d := net.Layers[0].(*nn.Dense)
 	bn := net.Layers[1].(*nn.BatchNorm)
 	d.Weight[0], d.Bias[0] = 3, 0
@@ -72,7 +73,7 @@ func TestFoldMatchesNetwork(t *testing.T) {
 		t.Errorf("folded W = %g, b = %g; want 1.5 and 0", layers[0].Weight[0], layers[0].Bias[0])
 	}
 	net.Close()
-	bad, _ := nn.FromSpec("input shape=4x4x1\nmaxpool size=2\nrelu\ndense units=2", nn.Shape{}, 1)
+	bad, _ := nn.FromSpec("input shape=4x4x1\nmaxpool size=2\nrelu\ndense out=2", nn.Shape{}, 1)
 	if _, err := Fold(bad); err == nil {
 		t.Error("ReLU after a pool folded without error")
 	}

@@ -10,7 +10,7 @@ import (
 // fuzzSeedModel quantises a small network touching every op kind, the
 // seed of the model-file fuzz targets.
 func fuzzSeedModel(f *testing.F) *Model {
-	net, _ := nn.FromSpec("input shape=6x5x1\nconv filters=2 kernel=3 stride=2 pad=same\nrelu\nmaxpool size=2 stride=1\ndepthwise kernel=2\nglobalavgpool\ndense units=3", nn.Shape{}, 1)
+	net, _ := nn.FromSpec("input shape=6x5x1\nconv out=2 kernel=3 stride=2 pad=same\nrelu\nmaxpool size=2 stride=1\ndepthwise kernel=2\nglobalavgpool\ndense out=3", nn.Shape{}, 1)
 	defer net.Close()
 	x := make([]float32, 4*30)
 	for i := range x {
@@ -43,7 +43,7 @@ func FuzzParseModel(f *testing.F) {
 // FuzzModelJSON fuzzes the validator behind the CRC: any JSON model that
 // Validate accepts must run without panicking.
 func FuzzModelJSON(f *testing.F) {
-	net, _ := nn.FromSpec("input shape=4x4x1\nconv filters=2 kernel=3 pad=same\nrelu6\navgpool size=2\ndense units=2", nn.Shape{}, 1)
+	net, _ := nn.FromSpec("input shape=4x4x1\nconv out=2 kernel=3 pad=same\nrelu6\navgpool size=2\ndense out=2", nn.Shape{}, 1)
 	x := make([]float32, 2*16)
 	for i := range x {
 		x[i] = float32(i%5) - 2

@@ -19,7 +19,7 @@ var update = flag.Bool("update", false, "rewrite testdata/*.golden from the curr
 // go test ./quant -run ExportGolden -update and bump the version if the
 // layout or meaning changed. On a mismatch the new bytes go to *.got.
 func TestExportGolden(t *testing.T) {
-	net, err := nn.FromSpec("input shape=6x5x1\nconv filters=3 kernel=3 stride=2 pad=same bias=false\nbatchnorm\nrelu\nmaxpool size=2 stride=1\ndepthwise kernel=2\nrelu6\nglobalavgpool\ndense units=2", nn.Shape{}, 11)
+	net, err := nn.FromSpec("input shape=6x5x1\nconv out=3 kernel=3 stride=2 pad=same bias=false\nbatchnorm\nrelu\nmaxpool size=2 stride=1\ndepthwise kernel=2\nrelu6\nglobalavgpool\ndense out=2", nn.Shape{}, 11)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -100,7 +100,7 @@ func quantizeLayers(fl []FloatLayer, act []QParams, s Scheme) ([]Layer, error) {
 				return nil, fmt.Errorf("quant: layer %d (%s) channel %d: bias %g does not fit int32 at scale %g", i, f.Op, c, f.Bias[c], bs)
 			}
 			l.Bias[c] = int32(b)
-			m0, sh, err := QuantizeMultiplier(bs / l.Out.Scale)
+			m0, sh, err := EncodeRescale(bs / l.Out.Scale)
 			if err != nil {
 				return nil, fmt.Errorf("quant: layer %d (%s) channel %d: %w", i, f.Op, c, err)
 			}

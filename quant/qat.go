@@ -8,7 +8,7 @@ import (
 	"github.com/pipit-audio/pipit/nn"
 )
 
-// QAT prepares and converts quantisation-aware fine-tuning (Jacob et al.
+// QAT carries a network through quantisation-aware fine-tuning (Jacob et al.
 // 2018 §3; Krishnamoorthi 2018 §3.2, fine-tuning from a float model): the
 // float network is folded (batch norm into the preceding layers), every
 // operation's output and the input pass through an nn.FakeQuant layer
@@ -27,10 +27,10 @@ type QAT struct {
 	started bool
 }
 
-// PrepareQAT builds the fine-tuning network from a trained float network.
+// NewQAT builds the fine-tuning network from a trained float network.
 // Its inference output before any training equals net's (up to folding
 // rounding).
-func PrepareQAT(net *nn.Network, s Scheme) (*QAT, error) {
+func NewQAT(net *nn.Network, s Scheme) (*QAT, error) {
 	if s.Weights == "" {
 		s.Weights = PerChannel
 	}
@@ -49,11 +49,11 @@ func PrepareQAT(net *nn.Network, s Scheme) (*QAT, error) {
 		}
 		switch f.Op {
 		case OpConv:
-			fmt.Fprintf(&b, "conv filters=%d kernel=%dx%d stride=%dx%d %s bias=true\n", f.Out.C, g.KH, g.KW, g.SH, g.SW, pad())
+			fmt.Fprintf(&b, "conv out=%d kernel=%dx%d stride=%dx%d %s bias=true\n", f.Out.C, g.KH, g.KW, g.SH, g.SW, pad())
 		case OpDepthwise:
 			fmt.Fprintf(&b, "depthwise kernel=%dx%d stride=%dx%d %s bias=true\n", g.KH, g.KW, g.SH, g.SW, pad())
 		case OpDense:
-			fmt.Fprintf(&b, "dense units=%d\n", f.Out.Size())
+			fmt.Fprintf(&b, "dense out=%d\n", f.Out.Size())
 		case OpMaxPool, OpAvgPool:
 			fmt.Fprintf(&b, "%s size=%dx%d stride=%dx%d %s\n", f.Op, g.KH, g.KW, g.SH, g.SW, pad())
 		case OpGlobalAvgPool:
@@ -178,9 +178,9 @@ func weightScale(m float64, pow2 bool) float64 {
 	return sc
 }
 
-// Convert quantises the fine-tuned network with the ranges its FakeQuant
+// Quantize quantises the fine-tuned network with the ranges its FakeQuant
 // layers tracked (the method is recorded as "qat").
-func (q *QAT) Convert() (*Model, error) {
+func (q *QAT) Quantize() (*Model, error) {
 	fl, err := Fold(q.Net)
 	if err != nil {
 		return nil, err

@@ -7,11 +7,11 @@ import (
 	"github.com/pipit-audio/pipit/nn"
 )
 
-func TestQATPrepareTrainConvert(t *testing.T) {
+func TestQATFineTuneThenQuantize(t *testing.T) {
 	net, x, n := randomNet(t, "separable", 6)
 	defer net.Close()
 	want := append([]float32(nil), net.Forward(x, n, false, nil)...)
-	q, err := PrepareQAT(net, Scheme{Weights: PerChannel})
+	q, err := NewQAT(net, Scheme{Weights: PerChannel})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -26,8 +26,8 @@ func TestQATPrepareTrainConvert(t *testing.T) {
 	if worst > 1e-4*math.Max(1, scale) {
 		t.Fatalf("QAT network differs from the float network by %.3g before training", worst)
 	}
-	if _, err := q.Convert(); err == nil {
-		t.Error("Convert before training gave no error")
+	if _, err := q.Quantize(); err == nil {
+		t.Error("Quantize before training gave no error")
 	}
 	// Fine-tune a few steps towards the float network's own decisions.
 	labels := make([]int, n)
@@ -61,7 +61,7 @@ func TestQATPrepareTrainConvert(t *testing.T) {
 			}
 		}
 	}
-	m, err := q.Convert()
+	m, err := q.Quantize()
 	if err != nil {
 		t.Fatal(err)
 	}

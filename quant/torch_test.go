@@ -15,7 +15,8 @@ import (
 // recorded in the file; testdata/gen/quant_ops.py), given the same int8
 // inputs, int8 per-channel weights, float biases, scales and zero points.
 // The two requantise differently (PyTorch with a float multiplier, pipit
-// with gemmlowp's fixed point; bias rounding may differ), so the bar is the
+// with the fixed-point multiplier and shift of Jacob et al. 2018; bias
+// rounding may differ), so the bar is the
 // issue's: within 1 LSB on at least 99.9 % of outputs.
 func TestQuantizedOpsAgainstPyTorch(t *testing.T) {
 	raw, err := os.ReadFile(filepath.Join("testdata", "qops.json"))
@@ -59,7 +60,7 @@ func TestQuantizedOpsAgainstPyTorch(t *testing.T) {
 	params := func(wScale, bias []float64, inS, outS float64) (b, m, s []int32) {
 		for ch := range wScale {
 			b = append(b, int32(math.Round(bias[ch]/(inS*wScale[ch]))))
-			m0, sh, err := QuantizeMultiplier(inS * wScale[ch] / outS)
+			m0, sh, err := EncodeRescale(inS * wScale[ch] / outS)
 			if err != nil {
 				t.Fatal(err)
 			}

@@ -91,14 +91,14 @@ func runDemo(out, cc string, epochs int, stderr io.Writer) (*demoReport, error) 
 		return nil, fmt.Errorf("the bit-exactness check needs a C compiler (%s): %w", cc, err)
 	}
 	rep := &demoReport{OutDir: out, Arch: "separable", Profile: "m4-half",
-		Corpus: filepath.Join(out, "corpus"), Model: filepath.Join(out, "model.ckpt"), QModel: filepath.Join(out, "model.q"), Export: filepath.Join(out, "export")}
+		Corpus: filepath.Join(out, "corpus"), Model: filepath.Join(out, "model.pnet"), QModel: filepath.Join(out, "model.pq8"), Export: filepath.Join(out, "export")}
 
 	step(stderr, 1, "synthesise the timber-yard corpus (8 classes × 40 clips × 1 s)")
-	b := newBar(stderr, "synth")
-	if _, err := datasets.Synthesize(rep.Corpus, datasets.SynthConfig{Seed: 1}, func(d, t int) { b.update(d, t, "clips") }); err != nil {
+	b := newTask(stderr, "synth")
+	if _, err := datasets.Synthesize(rep.Corpus, datasets.SynthConfig{Seed: 1}, func(d, t int) { b.step(d, t, "clips", "") }); err != nil {
 		return nil, err
 	}
-	b.done("written")
+	b.finish("written")
 
 	step(stderr, 2, "train the separable network (test fold 0, validation fold 1)")
 	cache := filepath.Join(out, "cache")

@@ -28,7 +28,7 @@ func TestSynthTrainEval(t *testing.T) {
 		t.Fatal(err)
 	}
 	manifest := filepath.Join(dir, "manifest.csv")
-	model := filepath.Join(dir, "model.ckpt")
+	model := filepath.Join(dir, "model.pnet")
 	cache := filepath.Join(dir, "cache")
 	out, err := run(t, "train", "--data", manifest, "--arch", "separable", "--out", model, "--cache", cache, "--json")
 	if err != nil {
@@ -57,7 +57,7 @@ func TestSynthTrainEval(t *testing.T) {
 
 	// int8: calibrate on the validation fold, compare on the test fold
 	// (issue bar: within 1 percentage point of float, per-channel weights).
-	qmodel := filepath.Join(dir, "model.q")
+	qmodel := filepath.Join(dir, "model.pq8")
 	out, err = run(t, "quantize", "--model", model, "--calib", manifest, "--out", qmodel, "--cache", cache, "--json")
 	if err != nil {
 		t.Fatal(err)
@@ -179,7 +179,7 @@ func linearBaseline(t *testing.T, manifest string) float64 {
 			trX, trY = append(trX, mean...), append(trY, y)
 		}
 	}
-	net, err := nn.FromSpec("input shape=1x1x40\ndense units=8", nn.Shape{}, 1)
+	net, err := nn.FromSpec("input shape=1x1x40\ndense out=8", nn.Shape{}, 1)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -99,7 +99,7 @@ func newEvalCmd() *cobra.Command {
 	var asJSON, skipBad bool
 	cmd := &cobra.Command{
 		Use:   "eval --model MODEL --data MANIFEST|FOLDER",
-		Short: "Evaluate a float or int8 model: accuracy, per-class precision/recall/F1, confusion matrix",
+		Short: "Evaluate a float or int8 model: accuracy, recall, precision and F1 by class, confusion matrix",
 		Long: `eval runs a model over a fold of a corpus (default: the fold it held out
 for testing) and reports accuracy, balanced accuracy, per-class precision,
 recall and F1 and the confusion matrix, for windows and for whole clips
@@ -152,14 +152,14 @@ confusion matrix is also drawn as a PNG.`,
 			png = model + ".confusion.png"
 		}
 		stderr := cmd.ErrOrStderr()
-		b := newBar(stderr, "load")
+		b := newTask(stderr, "load")
 		set, err := datasets.Load(c, ids, datasets.Options{FrontEnd: m.info.FrontEnd, Window: m.info.Window, Cache: &datasets.Cache{Dir: cacheDir},
-			SkipBad: skipBad, Warn: func(err error) { fmt.Fprintf(stderr, "\rskipping: %v\x1b[K\n", err) },
-			Progress: func(d, t int) { b.update(d, t, "clips") }})
+			SkipBad: skipBad, Warn: func(err error) { fmt.Fprintf(stderr, "skipping: %v\n", err) },
+			Progress: func(d, t int) { b.step(d, t, "clips", "") }})
 		if err != nil {
 			return err
 		}
-		b.done(fmt.Sprintf("%d clips → %d windows", len(set.Clips), set.Len()))
+		b.finish(fmt.Sprintf("%d clips → %d windows", len(set.Clips), set.Len()))
 		set.Stats = m.info.Stats
 		rep, err := evaluateSet(m.predictor(), set, m.info.Classes)
 		if err != nil {
@@ -260,9 +260,9 @@ func printEval(w io.Writer, r *evalReport) {
 	}{{"windows", r.Windows}, {"clips, mean probability", r.ClipsMean}, {"clips, majority vote", r.ClipsVote}} {
 		fmt.Fprintf(w, "%-24s accuracy %.3f  balanced accuracy %.3f  macro F1 %.3f\n", lv.name, lv.l.Accuracy, lv.l.BalancedAccuracy, lv.l.MacroF1)
 	}
-	fmt.Fprintf(w, "\nper class (windows):\n%-18s %9s %9s %9s %8s\n", "class", "precision", "recall", "F1", "support")
+	fmt.Fprintf(w, "\nby class (windows):\n%-18s %8s %7s %9s %6s\n", "class", "windows", "recall", "precision", "F1")
 	for k, pc := range r.Windows.PerClass {
-		fmt.Fprintf(w, "%-18s %9.3f %9.3f %9.3f %8d\n", r.Classes[k], pc.Precision, pc.Recall, pc.F1, pc.Support)
+		fmt.Fprintf(w, "%-18s %8d %7.3f %9.3f %6.3f\n", r.Classes[k], pc.Labelled, pc.Recall, pc.Precision, pc.F1)
 	}
 	cm := &nn.Confusion{Counts: r.Windows.Confusion}
 	fmt.Fprintf(w, "\nconfusion matrix (windows; rows true, columns predicted):\n%s\nconfusion PNG: %s\n", cm.Text(r.Classes), r.PNG)

@@ -26,10 +26,10 @@ func addFrontEndFlags(cmd *cobra.Command) *frontEndFlags {
 	fl.StringVar(&f.cfg.MelScale, "mel", f.cfg.MelScale, "mel scale: htk or slaney")
 	fl.StringVar(&f.cfg.MelNorm, "mel-norm", f.cfg.MelNorm, "band normalisation: none or area")
 	fl.StringVar(&f.cfg.Log, "log", f.cfg.Log, "log compression: ln or db")
-	fl.Float64Var(&f.cfg.TopDB, "top-db", f.cfg.TopDB, "with --log db, clip each frame this far below its loudest band (0: no clip)")
+	fl.Float64Var(&f.cfg.FloorBelowPeakDB, "floor-below-peak", f.cfg.FloorBelowPeakDB, "with --log db, raise each frame's bands to at least this many dB below its loudest band (0: off)")
 	fl.StringVar(&f.cfg.Window, "window-shape", f.cfg.Window, "window function: hann or hamming")
 	fl.BoolVar(&f.cfg.SymmetricWindow, "symmetric", false, "use the symmetric window instead of the periodic one")
-	fl.BoolVar(&f.cfg.Center, "center", false, "pad half a window of zeros at both ends")
+	fl.BoolVar(&f.cfg.PadEnds, "pad-ends", false, "pad half a window of zeros at both ends")
 	fl.StringVar(&f.cfg.Spectrum, "spectrum", f.cfg.Spectrum, "spectrum: power or magnitude")
 	return f
 }

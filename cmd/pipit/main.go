@@ -12,8 +12,9 @@ import (
 )
 
 func main() {
-	if err := newRootCmd(os.Stdout, os.Stderr).Execute(); err != nil {
-		fmt.Fprintln(os.Stderr, "pipit:", err)
+	stderr := newConsole(os.Stderr) // an error never lands on a live status line
+	if err := newRootCmd(os.Stdout, stderr).Execute(); err != nil {
+		fmt.Fprintln(stderr, "pipit:", err)
 		os.Exit(1)
 	}
 }
@@ -21,6 +22,7 @@ func main() {
 // newRootCmd builds the command tree; stdout and stderr are parameters so
 // tests can run commands in-process.
 func newRootCmd(stdout, stderr io.Writer) *cobra.Command {
+	stderr = newConsole(stderr)
 	root := &cobra.Command{
 		Use:           "pipit",
 		Short:         "From labelled sound recordings to a verified int8 classifier for a microcontroller",

@@ -143,7 +143,7 @@ func TestBudget(t *testing.T) {
 	// 3168 MAC/s.
 	dir := t.TempDir()
 	p := filepath.Join(dir, "tiny.spec")
-	os.WriteFile(p, []byte("input shape=8x8x1\nconv filters=4 kernel=3\nrelu\ndense units=2\n"), 0o644)
+	os.WriteFile(p, []byte("input shape=8x8x1\nconv out=4 kernel=3\nrelu\ndense out=2\n"), 0o644)
 	out, err := run(t, "budget", "--arch", p, "--json")
 	if err != nil {
 		t.Fatal(err)
@@ -160,7 +160,7 @@ func TestBudget(t *testing.T) {
 	if _, err := run(t, "budget", "--arch", "nosuch"); err == nil || !strings.Contains(err.Error(), "neither") {
 		t.Errorf("unknown arch: error %v", err)
 	}
-	os.WriteFile(p, []byte("conv filters=4\n"), 0o644)
+	os.WriteFile(p, []byte("conv out=4\n"), 0o644)
 	if _, err := run(t, "budget", "--arch", p); err == nil || !strings.Contains(err.Error(), "tiny.spec") {
 		t.Errorf("bad spec: error %v, want one naming the file", err)
 	}

@@ -59,9 +59,9 @@ pipit eval.`,
 	f.StringVar(&model, "model", "", "float model written by pipit train (required)")
 	f.StringVar(&calib, "calib", "", "corpus to calibrate on: manifest CSV or class folders (required)")
 	f.IntVar(&calibFold, "calib-fold", -2, "calibration fold (default: the model's validation fold; -1: every fold but the test fold)")
-	f.StringVar(&method, "method", quant.MethodAuto, "range observer: minmax, percentile, mse or auto (best on the calibration set)")
+	f.StringVar(&method, "method", quant.MethodAuto, "how activation ranges are calibrated: minmax, percentile, mse or auto (best on the calibration set)")
 	f.StringVar(&scheme, "scheme", quant.PerChannel, "weights: per-channel, per-tensor, or pow2 (per-channel with power-of-two scales)")
-	f.StringVar(&out, "out", "", "quantised model to write (required)")
+	f.StringVar(&out, "out", "", "int8 model file to write, by convention NAME.pq8 (required)")
 	f.StringVar(&group, "group", "", "manifest column naming the source recording")
 	f.StringVar(&cacheDir, "cache", defaultCacheDir(), "feature cache directory (empty: no cache)")
 	f.IntVar(&qatEpochs, "qat-epochs", 0, "quantisation-aware fine-tuning epochs on the training folds after calibration (0: post-training quantisation only)")
@@ -145,8 +145,8 @@ func runQuantize(model, calib, group, cacheDir, out string, calibFold int, cfg q
 	for i := range labels {
 		labels[i] = calSet.Sample(i, 0, x[i*in:(i+1)*in])
 	}
-	b := newBar(stderr, "calibrate")
-	b.update(0, 1, fmt.Sprintf("%d windows, method %s", calSet.Len(), cfg.Method))
+	b := newTask(stderr, "calibrate")
+	b.show(fmt.Sprintf("%d windows, method %s …", calSet.Len(), cfg.Method))
 	q, qrep, err := quant.Quantize(m.net, x, len(labels), labels, cfg)
 	if err != nil {
 		return nil, err
@@ -154,7 +154,7 @@ func runQuantize(model, calib, group, cacheDir, out string, calibFold int, cfg q
 	if err := q.CheckOverflow(); err != nil {
 		return nil, err
 	}
-	b.done("method " + qrep.Method)
+	b.finish(fmt.Sprintf("%d windows, method %s", calSet.Len(), qrep.Method))
 	ptq := q
 	if qat.epochs > 0 {
 		q, err = fineTuneQAT(m, c, opts, cfg.Scheme, qat, stderr)
@@ -212,7 +212,7 @@ func fineTuneQAT(m *loadedModel, c *datasets.Corpus, opts datasets.Options, s qu
 		return nil, err
 	}
 	trainSet.Stats, valSet.Stats = m.info.Stats, m.info.Stats
-	qat, err := quant.PrepareQAT(m.net, s)
+	qat, err := quant.NewQAT(m.net, s)
 	if err != nil {
 		return nil, err
 	}
@@ -222,22 +222,22 @@ func fineTuneQAT(m *loadedModel, c *datasets.Corpus, opts datasets.Options, s qu
 		return nil, err
 	}
 	qat.Attach(tr)
-	var b *bar
+	var b *task
 	_, err = nn.Fit(tr, nn.FitConfig{Epochs: o.epochs, Batch: 32, Seed: 1}, trainSet, valSet,
 		func(ep, st, n int, loss, acc float64, seen int, secs float64) {
 			if st == 1 {
-				b = newBar(stderr, fmt.Sprintf("QAT epoch %d/%d", ep, o.epochs))
+				b = newTask(stderr, fmt.Sprintf("QAT epoch %d/%d", ep, o.epochs))
 			}
-			b.update(st, n, fmt.Sprintf("loss %.4f acc %.3f", loss, acc))
+			b.step(st, n, "batches", fmt.Sprintf("train loss %.4f, %.1f %% of windows right", loss, 100*acc))
 		},
 		func(e nn.EpochStats) error {
-			b.done(fmt.Sprintf("loss %.4f acc %.3f | val acc %.3f", e.Loss, e.Accuracy, e.ValAcc))
+			b.finish(fmt.Sprintf("train loss %.4f, %.1f %% of windows right; val fold %.1f %% right", e.Loss, 100*e.Accuracy, 100*e.ValAcc))
 			return nil
 		})
 	if err != nil {
 		return nil, err
 	}
-	return qat.Convert()
+	return qat.Quantize()
 }
 
 func mustJSON(v any) []byte {

@@ -32,12 +32,12 @@ path,label,fold,group; folds are assigned from --seed.`,
 	f.BoolVar(&asJSON, "json", false, "print a JSON summary")
 	cmd.MarkFlagRequired("out")
 	cmd.RunE = func(cmd *cobra.Command, _ []string) error {
-		b := newBar(cmd.ErrOrStderr(), "synth")
-		c, err := datasets.Synthesize(out, cfg, func(done, total int) { b.update(done, total, "clips") })
+		b := newTask(cmd.ErrOrStderr(), "synth")
+		c, err := datasets.Synthesize(out, cfg, func(done, total int) { b.step(done, total, "clips", "") })
 		if err != nil {
 			return err
 		}
-		b.done(fmt.Sprintf("%d clips", len(c.Clips)))
+		b.finish(fmt.Sprintf("%d clips", len(c.Clips)))
 		if asJSON {
 			return printJSON(cmd.OutOrStdout(), map[string]any{"manifest": c.Source, "clips": len(c.Clips), "classes": c.Classes, "folds": c.Folds})
 		}

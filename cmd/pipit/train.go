@@ -36,8 +36,8 @@ type trainReport struct {
 	TestFold         int     `json:"test_fold"`
 	ValFold          int     `json:"val_fold"`
 	TrainWindows     int     `json:"train_windows"`
-	ValAccuracy      float64 `json:"val_accuracy"`
-	TestAccuracy     float64 `json:"test_accuracy"`
+	ValAccuracy      float64 `json:"val_fold_accuracy"`
+	TestAccuracy     float64 `json:"test_window_accuracy"`
 	TestClipAccuracy float64 `json:"test_clip_accuracy"`
 	BestEpoch        int     `json:"best_epoch"`
 	Epochs           int     `json:"epochs"`
@@ -52,7 +52,7 @@ func addTrainFlags(cmd *cobra.Command, o *trainOptions) {
 	f := cmd.Flags()
 	f.StringVar(&o.data, "data", "", "manifest CSV or folder with one sub-folder per class (required)")
 	f.StringVar(&o.arch, "arch", "separable", "built-in architecture ("+strings.Join(nn.ArchNames(), ", ")+") or layer-spec file")
-	f.StringVar(&o.out, "out", "", "model file to write (required)")
+	f.StringVar(&o.out, "out", "", "float model file to write, by convention NAME.pnet (required)")
 	f.IntVar(&o.testFold, "test-fold", 0, "fold held out for testing")
 	f.IntVar(&o.valFold, "val-fold", -1, "fold for validation and early stopping (default: the fold after the test fold)")
 	f.IntVar(&o.folds, "folds", 5, "folds to assign when the corpus has none")
@@ -147,9 +147,9 @@ type meanStd struct {
 
 type cvReport struct {
 	Folds            []*trainReport `json:"folds"`
-	TestAccuracy     meanStd        `json:"test_accuracy"`
+	TestAccuracy     meanStd        `json:"test_window_accuracy"`
 	TestClipAccuracy meanStd        `json:"test_clip_accuracy"`
-	ValAccuracy      meanStd        `json:"val_accuracy"`
+	ValAccuracy      meanStd        `json:"val_fold_accuracy"`
 	Seconds          float64        `json:"seconds"`
 }
 
@@ -238,18 +238,17 @@ func trainOne(o *trainOptions, c *datasets.Corpus, testFold, valFold int, out st
 	cache := &datasets.Cache{Dir: o.cacheDir}
 	skipped := 0
 	opts := datasets.Options{FrontEnd: o.fe, Window: win, Cache: cache, SkipBad: o.skipBad,
-		Warn: func(err error) { skipped++; fmt.Fprintf(stderr, "\rskipping: %v\x1b[K\n", err) }}
+		Warn: func(err error) { skipped++; fmt.Fprintf(stderr, "skipping: %v\n", err) }}
 	load := func(name string, ids []int, keepAudio bool) (*datasets.Set, error) {
-		b := newBar(stderr, "load "+name)
+		b := newTask(stderr, "load "+name)
 		op := opts
 		op.KeepAudio = keepAudio
-		op.Progress = func(d, t int) { b.update(d, t, "clips") }
+		op.Progress = func(d, t int) { b.step(d, t, "clips", "") }
 		s, err := datasets.Load(c, ids, op)
 		if err != nil {
-			fmt.Fprintln(stderr)
 			return nil, err
 		}
-		b.done(fmt.Sprintf("%d clips → %d windows", len(s.Clips), s.Len()))
+		b.finish(fmt.Sprintf("%d clips → %d windows", len(s.Clips), s.Len()))
 		return s, nil
 	}
 	trainSet, err := load("train", trainIDs, !o.noAugment)
@@ -289,23 +288,24 @@ func trainOne(o *trainOptions, c *datasets.Corpus, testFold, valFold int, out st
 	}
 	logPath, pngPath := out+".log.csv", out+".curves.png"
 	var hist []nn.EpochStats
-	var b *bar
+	var b *task
 	progress := func(ep, s, n int, loss, acc float64, seen int, secs float64) {
 		if s == 1 {
-			b = newBar(stderr, fmt.Sprintf("epoch %d/%d", ep, o.epochs))
-			b.start = time.Now().Add(-time.Duration(secs * float64(time.Second)))
+			b = newTask(stderr, fmt.Sprintf("epoch %d/%d", ep, o.epochs))
+			b.startAt(time.Now().Add(-time.Duration(secs * float64(time.Second))))
 		}
-		b.update(s, n, fmt.Sprintf("loss %.4f acc %.3f %4.0f samples/s", loss, acc, float64(seen)/secs))
+		b.step(s, n, "batches", fmt.Sprintf("train loss %.4f, %.1f %% of windows right, %.0f windows/s", loss, 100*acc, float64(seen)/secs))
 	}
 	onEpoch := func(e nn.EpochStats) error {
 		mark := ""
 		if e.Best {
-			mark = " *best"
+			mark = "; best so far, saved"
 			if err := tr.WriteCheckpoint(out, meta); err != nil {
 				return err
 			}
 		}
-		b.done(fmt.Sprintf("loss %.4f acc %.3f | val loss %.4f acc %.3f | %.0f samples/s%s", e.Loss, e.Accuracy, e.ValLoss, e.ValAcc, e.SamplesSec, mark))
+		b.finish(fmt.Sprintf("train loss %.4f, %.1f %% of windows right; val fold %d loss %.4f, %.1f %% right; %.0f windows/s%s",
+			e.Loss, 100*e.Accuracy, valFold, e.ValLoss, 100*e.ValAcc, e.SamplesSec, mark))
 		hist = append(hist, e)
 		return writeTrainLog(logPath, pngPath, hist)
 	}
@@ -340,7 +340,7 @@ func trainOne(o *trainOptions, c *datasets.Corpus, testFold, valFold int, out st
 
 func writeTrainLog(csvPath, pngPath string, hist []nn.EpochStats) error {
 	err := fsutil.WriteWith(csvPath, func(w io.Writer) error {
-		fmt.Fprintln(w, "epoch,loss,accuracy,val_loss,val_accuracy,lr,seconds,samples_per_second,best")
+		fmt.Fprintln(w, "epoch,train_loss,train_window_accuracy,val_fold_loss,val_fold_window_accuracy,learning_rate,seconds,windows_per_second,best_so_far")
 		for _, e := range hist {
 			fmt.Fprintf(w, "%d,%.6f,%.6f,%.6f,%.6f,%.6g,%.3f,%.1f,%v\n", e.Epoch, e.Loss, e.Accuracy, e.ValLoss, e.ValAcc, e.LR, e.Seconds, e.SamplesSec, e.Best)
 		}
@@ -358,9 +358,9 @@ func writeTrainLog(csvPath, pngPath string, hist []nn.EpochStats) error {
 	if len(hist) < 2 {
 		return nil // a line needs two points
 	}
-	fig := plots.LineChart{Title: "training curves", XLabel: "epoch", YLabel: "loss / accuracy", Series: []plots.Series{
-		{Name: "train loss", X: ep, Y: loss}, {Name: "val loss", X: ep, Y: vloss, Dashed: true},
-		{Name: "train accuracy", X: ep, Y: acc}, {Name: "val accuracy", X: ep, Y: vacc, Dashed: true},
+	fig := plots.LineChart{Title: "training curves", XLabel: "epoch", YLabel: "loss / window accuracy", Series: []plots.Series{
+		{Name: "train loss", X: ep, Y: loss}, {Name: "val fold loss", X: ep, Y: vloss, Dashed: true},
+		{Name: "train window accuracy", X: ep, Y: acc}, {Name: "val fold window accuracy", X: ep, Y: vacc, Dashed: true},
 	}}
 	return plots.SavePNG(pngPath, fig)
 }

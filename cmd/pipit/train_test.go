@@ -20,7 +20,7 @@ func tinyCorpus(t *testing.T) string {
 func TestTrainOnFolderCorpusAndCrossValidate(t *testing.T) {
 	dir := tinyCorpus(t)
 	os.Remove(filepath.Join(dir, "manifest.csv")) // the folder form: one sub-folder per class
-	model := filepath.Join(t.TempDir(), "m.ckpt")
+	model := filepath.Join(t.TempDir(), "m.pnet")
 	out, err := run(t, "train", "--data", dir, "--out", model, "--epochs", "2", "--folds", "3", "--cache", "", "--json")
 	if err != nil {
 		t.Fatal(err)
@@ -40,6 +40,9 @@ func TestTrainOnFolderCorpusAndCrossValidate(t *testing.T) {
 	log, _ := os.ReadFile(model + ".log.csv")
 	if n := strings.Count(string(log), "\n"); n != 3 {
 		t.Errorf("log has %d lines, want header + 2 epochs", n)
+	}
+	if h, _, _ := strings.Cut(string(log), "\n"); h != "epoch,train_loss,train_window_accuracy,val_fold_loss,val_fold_window_accuracy,learning_rate,seconds,windows_per_second,best_so_far" {
+		t.Errorf("log header %q", h)
 	}
 	// eval on the folder corpus re-derives the same folds from the model.
 	out, err = run(t, "eval", "--model", model, "--data", dir, "--cache", "", "--json")
@@ -70,7 +73,7 @@ func TestTrainOnFolderCorpusAndCrossValidate(t *testing.T) {
 func TestTrainCorpusErrors(t *testing.T) {
 	dir := tinyCorpus(t)
 	manifest := filepath.Join(dir, "manifest.csv")
-	model := filepath.Join(t.TempDir(), "m.ckpt")
+	model := filepath.Join(t.TempDir(), "m.pnet")
 	// A corrupt WAV fails the run, naming the file, unless --skip-bad.
 	bad := filepath.Join(dir, "rain", "rain_002.wav")
 	os.WriteFile(bad, []byte("RIFF\x00\x00\x00\x00WAVE"), 0o644)
@@ -103,11 +106,11 @@ func TestTrainCorpusErrors(t *testing.T) {
 func TestQuantizeWithQAT(t *testing.T) {
 	dir := tinyCorpus(t)
 	manifest := filepath.Join(dir, "manifest.csv")
-	model := filepath.Join(t.TempDir(), "m.ckpt")
+	model := filepath.Join(t.TempDir(), "m.pnet")
 	if _, err := run(t, "train", "--data", manifest, "--out", model, "--epochs", "2", "--cache", ""); err != nil {
 		t.Fatal(err)
 	}
-	q := model + ".q"
+	q := strings.TrimSuffix(model, ".pnet") + ".pq8"
 	out, err := run(t, "quantize", "--model", model, "--calib", manifest, "--out", q, "--cache", "", "--qat-epochs", "1", "--json")
 	if err != nil {
 		t.Fatal(err)

@@ -18,14 +18,14 @@ import scipy.signal
 CASES = {
     # pipit's DefaultConfig
     "default": dict(sample_rate_hz=16000, window_samples=512, hop_samples=256, fft_size=512,
-                    window="hann", symmetric_window=False, center=False, bands=40,
+                    window="hann", symmetric_window=False, pad_ends=False, bands=40,
                     fmin_hz=0.0, fmax_hz=8000.0, mel_scale="htk", mel_norm="none",
-                    spectrum="power", log="db", log_floor=1e-10, top_db=80.0),
+                    spectrum="power", log="db", log_floor=1e-10, floor_below_peak_db=80.0),
     # every other option flipped
     "variant": dict(sample_rate_hz=16000, window_samples=400, hop_samples=160, fft_size=512,
-                    window="hamming", symmetric_window=True, center=True, bands=32,
+                    window="hamming", symmetric_window=True, pad_ends=True, bands=32,
                     fmin_hz=125.0, fmax_hz=7000.0, mel_scale="slaney", mel_norm="area",
-                    spectrum="magnitude", log="ln", log_floor=1e-6, top_db=0.0),
+                    spectrum="magnitude", log="ln", log_floor=1e-6, floor_below_peak_db=0.0),
 }
 
 
@@ -63,7 +63,7 @@ def filterbank(c):
 
 def logmel(x, c):
     win = scipy.signal.get_window(c["window"], c["window_samples"], fftbins=not c["symmetric_window"])
-    pad = c["window_samples"] // 2 if c["center"] else 0
+    pad = c["window_samples"] // 2 if c["pad_ends"] else 0
     x = np.concatenate([np.zeros(pad), x, np.zeros(pad)])
     n_frames = 1 + (len(x) - c["window_samples"]) // c["hop_samples"]
     off = (c["fft_size"] - c["window_samples"]) // 2
@@ -78,8 +78,8 @@ def logmel(x, c):
         v = np.maximum(fb @ spec, c["log_floor"])
         if c["log"] == "db":
             v = 10.0 * np.log10(v)
-            if c["top_db"] > 0:
-                v = np.maximum(v, v.max() - c["top_db"])
+            if c["floor_below_peak_db"] > 0:
+                v = np.maximum(v, v.max() - c["floor_below_peak_db"])
         else:
             v = np.log(v)
         rows.append(v)

@@ -3,7 +3,7 @@
 numpy (Debian python3-numpy 1.24.2) from their definitions: confusion matrix
 C[t, p]; precision = diag / column sum, recall = diag / row sum, zero when
 the denominator is zero; F1 = 2PR/(P+R) (0 when P+R = 0); accuracy =
-trace / total; balanced accuracy = mean recall over classes with support;
+trace / total; balanced accuracy = mean recall over classes that occur in the truth;
 macro F1 = mean F1. Writes nn/testdata/metrics_golden.json.
 Run from the repository root.
 """

@@ -6,9 +6,9 @@ static int32_t rd32(const uint8_t *p) {
   return (int32_t)v;
 }
 
-/* Round-to-nearest high half of 2ab, ties toward +inf, saturating
- * (-2^31)*(-2^31); C99 division truncates toward zero as C++ does. */
-int32_t pipit_srdhm(int32_t a, int32_t b) {
+/* Q31 product rounded to nearest, ties toward +inf, saturating
+ * (-2^31)*(-2^31); C99 division truncates toward zero, hence the nudge. */
+int32_t pipit_mul_q31(int32_t a, int32_t b) {
   int64_t ab, nudge;
   if (a == INT32_MIN && b == INT32_MIN) return INT32_MAX;
   ab = (int64_t)a * (int64_t)b;
@@ -18,7 +18,7 @@ int32_t pipit_srdhm(int32_t a, int32_t b) {
 
 /* x / 2^exponent rounded half away from zero, without shifting negative
  * numbers (implementation-defined in C99). */
-int32_t pipit_rdbpot(int32_t x, int exponent) {
+int32_t pipit_shr_round(int32_t x, int exponent) {
   int64_t v = x, half;
   if (exponent <= 0) return x;
   half = (int64_t)1 << (exponent - 1);
@@ -31,9 +31,9 @@ int32_t pipit_requant(int32_t acc, int32_t m0, int32_t shift) {
     int64_t v = (int64_t)acc * ((int64_t)1 << (-shift));
     if (v > INT32_MAX) v = INT32_MAX;
     if (v < INT32_MIN) v = INT32_MIN;
-    return pipit_srdhm((int32_t)v, m0);
+    return pipit_mul_q31((int32_t)v, m0);
   }
-  return pipit_rdbpot(pipit_srdhm(acc, m0), shift);
+  return pipit_shr_round(pipit_mul_q31(acc, m0), shift);
 }
 
 static int8_t clamp8(int32_t v, int32_t lo, int32_t hi) {

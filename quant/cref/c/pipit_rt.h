@@ -59,9 +59,14 @@ typedef struct {
 #define PIPIT_ERR_POOL (-2)   /* pool smaller than the plan */
 #define PIPIT_ERR_BLOB (-3)   /* bad blob header */
 
-/* Fixed-point helpers (gemmlowp fixedpoint.h semantics). */
-int32_t pipit_srdhm(int32_t a, int32_t b);
-int32_t pipit_rdbpot(int32_t x, int exponent);
+/* Fixed-point helpers (docs/export-format.md, "Arithmetic"; Jacob et al.
+ * 2018, eqs. 5-6):
+ * pipit_mul_q31(a, b)      = floor((a*b + 2^30) / 2^31), (-2^31)^2 -> 2^31-1
+ * pipit_shr_round(x, n)    = x / 2^n rounded half away from zero
+ * pipit_requant(acc, m0, n) = pipit_shr_round(pipit_mul_q31(acc, m0), n),
+ *                            n < 0: acc saturating-shifted left by -n first */
+int32_t pipit_mul_q31(int32_t a, int32_t b);
+int32_t pipit_shr_round(int32_t x, int exponent);
 int32_t pipit_requant(int32_t acc, int32_t m0, int32_t shift);
 
 /* Checks the blob magic, version and length. */

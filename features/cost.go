@@ -63,6 +63,12 @@ const (
 	FrontEndConfigBytes = 14*4 + 7*4
 )
 
+// FrontEndCodeBytes is the code size of the C front end (pipit_fe.c) for a
+// Cortex-M4, as measured: the .text of pipit_fe.o from arm-none-eabi-gcc
+// 12.2.1 with the flags of nn.RuntimeCodeBytes. It does not depend on the
+// settings (they are tables); quant/m4_test.go re-measures it.
+const FrontEndCodeBytes = 1948
+
 // CostOnDevice returns the [DeviceCost] of c feeding network inputs of
 // frames frames. The C front end needs a power-of-two FFT size of at least
 // 4; other sizes, an invalid c or frames < 1 are errors.

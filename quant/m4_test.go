@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"github.com/pipit-audio/pipit/features"
+	"github.com/pipit-audio/pipit/nn"
 	"github.com/pipit-audio/pipit/quant/cref"
 )
 
@@ -143,6 +144,16 @@ func TestEmulatedCortexM4(t *testing.T) {
 	if sizes.Symbols["fe"] != c.RAMBytes || tables != c.TableBytes || sizes.Symbols["pool"] != doc.Memory.PoolBytes || sizes.Symbols["yard_blob"] != len(blob) {
 		t.Errorf("arm-none-eabi-nm: front-end state %d B (model %d), tables %d B (model %d), pool %d B (plan %d), blob %d B (%d)",
 			sizes.Symbols["fe"], c.RAMBytes, tables, c.TableBytes, sizes.Symbols["pool"], doc.Memory.PoolBytes, sizes.Symbols["yard_blob"], len(blob))
+	}
+	// Code size against the cost model's measured constants (a quarter of
+	// slack for other compiler versions).
+	for _, c := range []struct {
+		name       string
+		got, model int
+	}{{"runtime", sizes.RuntimeCode, nn.RuntimeCodeBytes}, {"front end", sizes.FrontEndCode, features.FrontEndCodeBytes}} {
+		if math.Abs(float64(c.got-c.model)) > 0.25*float64(c.model) {
+			t.Errorf("%s code: %d bytes from arm-none-eabi-size, cost model %d", c.name, c.got, c.model)
+		}
 	}
 	netInstr := float64(r.NetTicks*cref.InstructionsPerTick) / float64(len(r.RecInputs))
 	t.Logf("sizes %+v; stack %d B; front end %.0f instructions/frame; network %.0f instructions/inference (%.2f per MAC); front-end inputs %d/%d values equal",

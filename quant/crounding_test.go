@@ -148,7 +148,8 @@ func TestCRoundingHelpers(t *testing.T) {
 		e := int32(rng.IntN(32))
 		cases = append(cases, roundingCase{2, int32(rng.Uint32()), e, 0})
 		if e > 0 {
-			q := int64(rng.Int32N(1<<(31-e))) - int64(rng.Int32N(1<<(31-e)))
+			span := int32(1) << (31 - e)
+			q := int64(rng.Int32N(span)) - int64(span)/2 // both signs
 			x := q<<e + 1<<(e-1)
 			if x >= math.MinInt32 && x <= math.MaxInt32 {
 				cases = append(cases, roundingCase{2, int32(x), e, 0})

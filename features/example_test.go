@@ -74,3 +74,18 @@ func ExampleDecodeWAV() {
 	// Output:
 	// features: clip.wav: no fmt chunk
 }
+
+// Before training, check what the C front end would cost on the device at
+// these settings: the hop is the first lever (doubling it halves the
+// front end's compute).
+func ExampleCostOnDevice() {
+	cfg := features.DefaultConfig()
+	c, _ := features.CostOnDevice(cfg, 61)
+	fmt.Printf("%.1f frames/s × %d flops = %.0f flop/s; RAM %d B, tables %d B\n", c.FramesPerSecond, c.FlopsPerFrame, c.FlopsPerSecond, c.RAMBytes, c.TableBytes)
+	cfg.HopSamples = 512
+	c, _ = features.CostOnDevice(cfg, 31)
+	fmt.Printf("hop 512: %.0f flop/s\n", c.FlopsPerSecond)
+	// Output:
+	// 62.5 frames/s × 15393 flops = 962062 flop/s; RAM 5728 B, tables 6632 B
+	// hop 512: 481031 flop/s
+}

@@ -102,6 +102,9 @@ type SchemeDoc struct {
 	Layers  []SchemeLayer   `json:"layers"`
 	Memory  MemoryPlan      `json:"memory"`
 	Totals  Totals          `json:"totals"`
+	// FrontEnd describes the generated C front end (RAM, tables, flops),
+	// filled by the caller that generates it (opaque to quant).
+	FrontEnd json.RawMessage `json:"device_front_end,omitempty"`
 }
 
 // BlobInfo identifies the blob a scheme belongs to.

@@ -3,12 +3,14 @@ package main
 import (
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"strings"
 	"text/tabwriter"
 
 	"github.com/spf13/cobra"
 
+	"github.com/pipit-audio/pipit/features"
 	"github.com/pipit-audio/pipit/nn"
 )
 
@@ -30,6 +32,76 @@ type budgetReport struct {
 	Layers           []nn.LayerCost `json:"layers"`
 	PeakLayer        int            `json:"peak_layer"`
 	ProfileNote      string         `json:"profile_note"`
+	// The whole path: the C front end (features.CostOnDevice) beside the
+	// network. Fits above is the whole path's verdict; Verdict is the
+	// network's alone.
+	FrontEndConfig features.Config     `json:"front_end_config"`
+	FrontEnd       features.DeviceCost `json:"front_end"`
+	WholePath      wholePath           `json:"whole_path"`
+}
+
+// wholePath is the budget of front end + network, resource by resource.
+// Compute charges each front-end floating-point operation as one
+// multiply-accumulate of the profile's budget (conservative: a Cortex-M4F
+// issues most single-precision operations in one cycle, while the
+// profile's MAC rate assumes several cycles per int8 MAC).
+type wholePath struct {
+	ComputePerSecond float64 `json:"compute_per_second"` // network MAC/s + front-end flop/s
+	RAMBytes         int64   `json:"ram_bytes"`          // pool + front-end buffers
+	FlashBytes       int64   `json:"flash_bytes"`        // weights + front-end tables + code
+	CodeBytes        int64   `json:"code_bytes"`         // runtime + front end, measured (see nn.RuntimeCodeBytes)
+	ComputeUse       float64 `json:"compute_use"`
+	RAMUse           float64 `json:"ram_use"`
+	FlashUse         float64 `json:"flash_use"`
+	ComputeFits      bool    `json:"compute_fits"`
+	RAMFits          bool    `json:"ram_fits"`
+	FlashFits        bool    `json:"flash_fits"`
+	Fits             bool    `json:"fits"`
+}
+
+func newWholePath(c nn.CostReport, v nn.Verdict, fe features.DeviceCost, p nn.Profile) wholePath {
+	w := wholePath{ComputePerSecond: v.MACsPerSecond + fe.FlopsPerSecond, RAMBytes: c.RAMBytes + int64(fe.RAMBytes),
+		CodeBytes: nn.RuntimeCodeBytes + features.FrontEndCodeBytes}
+	w.FlashBytes = c.FlashBytes + int64(fe.TableBytes) + w.CodeBytes
+	w.ComputeUse, w.RAMUse, w.FlashUse = w.ComputePerSecond/p.MACsPerSecond, float64(w.RAMBytes)/float64(p.RAMBytes), float64(w.FlashBytes)/float64(p.FlashBytes)
+	w.ComputeFits, w.RAMFits, w.FlashFits = w.ComputeUse <= 1, w.RAMUse <= 1, w.FlashUse <= 1
+	w.Fits = w.ComputeFits && w.RAMFits && w.FlashFits
+	return w
+}
+
+// netForFrontEnd builds the network a front end feeds: a built-in
+// architecture is rebuilt on (bands, frames of one window, 1), so that the
+// front-end settings move the network's cost too; a spec file keeps its
+// input, whose H must equal the bands (taken from the spec when --bands is
+// not given).
+func netForFrontEnd(arch string, classes int, cfg *features.Config, bandsSet bool, secs float64) (*nn.Network, error) {
+	for _, name := range nn.ArchNames() {
+		if arch != name {
+			continue
+		}
+		spec, err := nn.ArchSpec(arch, classes)
+		if err != nil {
+			return nil, err
+		}
+		frames := cfg.Frames(int(math.Round(secs * float64(cfg.SampleRateHz))))
+		if frames < 1 {
+			return nil, fmt.Errorf("--seconds %g is shorter than one %d-sample window", secs, cfg.WindowSamples)
+		}
+		_, body, _ := strings.Cut(spec, "\n") // drop the input line
+		return nn.FromSpec(body, nn.Shape{H: cfg.Bands, W: frames, C: 1}, 1)
+	}
+	net, err := loadArch(arch, classes, 1)
+	if err != nil {
+		return nil, err
+	}
+	if !bandsSet {
+		cfg.Bands = net.Input.H
+	}
+	if net.Input.H != cfg.Bands || net.Input.C != 1 {
+		net.Close()
+		return nil, fmt.Errorf("%s: network input %v does not take %d bands × frames × 1 (set --bands)", arch, net.Input, cfg.Bands)
+	}
+	return net, nil
 }
 
 // loadArch builds a built-in architecture by name or a network from a
@@ -67,10 +139,13 @@ func newBudgetCmd() *cobra.Command {
 		Long: `budget prints, layer by layer, the multiply-accumulates, parameters and
 output activation size of a network, its totals (MACs, flash, peak RAM
 under a two-buffer plan), MACs per second when windows of --seconds overlap
-by --overlap, and a fits / does-not-fit verdict per resource against a
+by --overlap, the C front end's cost (floating-point operations per second
+at the front end's hop, its RAM and tables) and a fits / does-not-fit
+verdict per resource for the whole path (front end + network) against a
 device profile. --arch is a built-in architecture (pooled, strided,
-separable; input 40x61x1) or a layer-spec file with an "input" line.
---elem 1 (default) costs the int8 deployment, --elem 4 float32.`,
+separable), rebuilt on the input the front-end flags give (40x61x1 at the
+defaults), or a layer-spec file with an "input" line. --elem 1 (default)
+costs the int8 deployment, --elem 4 float32.`,
 		Args: cobra.NoArgs,
 	}
 	f := cmd.Flags()
@@ -81,6 +156,7 @@ separable; input 40x61x1) or a layer-spec file with an "input" line.
 	f.Float64Var(&secs, "seconds", 1.0, "audio window per inference, seconds")
 	f.IntVar(&elem, "elem", 1, "bytes per activation and weight value: 1 (int8) or 4 (float32)")
 	f.BoolVar(&asJSON, "json", false, "print the report as JSON")
+	fe := addFrontEndFlags(cmd)
 	cmd.RunE = func(cmd *cobra.Command, _ []string) error {
 		if elem != 1 && elem != 4 {
 			return fmt.Errorf("--elem %d: want 1 or 4", elem)
@@ -93,19 +169,31 @@ separable; input 40x61x1) or a layer-spec file with an "input" line.
 		if err != nil {
 			return err
 		}
-		net, err := loadArch(arch, classes, 1)
+		cfg := fe.cfg
+		if cfg.FFTSize == 0 {
+			cfg.FFTSize = cfg.WindowSamples
+		}
+		net, err := netForFrontEnd(arch, classes, &cfg, cmd.Flags().Changed("bands"), secs)
 		if err != nil {
 			return err
 		}
 		defer net.Close()
+		if cfg, err = fe.resolve(cfg); err != nil {
+			return err
+		}
+		fc, err := features.CostOnDevice(cfg, net.Input.W)
+		if err != nil {
+			return err
+		}
 		c := nn.Cost(net, elem)
 		v := c.Check(p, ips)
+		whole := newWholePath(c, v, fc, p)
 		rep := budgetReport{
 			Arch: arch, Classes: net.Output().Size(), Input: net.Input.String(), ElemBytes: elem,
 			WindowSeconds: secs, Overlap: overlap, InferencesPerSec: ips,
 			MACs: c.MACs, Params: c.Params, FlashBytes: c.FlashBytes, RAMBytes: c.RAMBytes,
-			MACsPerSecond: v.MACsPerSecond, Fits: v.Fits, Verdict: v, Layers: c.Layers, PeakLayer: c.PeakLayer,
-			ProfileNote: p.Note,
+			MACsPerSecond: v.MACsPerSecond, Fits: whole.Fits, Verdict: v, Layers: c.Layers, PeakLayer: c.PeakLayer,
+			ProfileNote: p.Note, FrontEndConfig: cfg, FrontEnd: fc, WholePath: whole,
 		}
 		if asJSON {
 			return printJSON(cmd.OutOrStdout(), rep)
@@ -145,5 +233,21 @@ func printBudget(w io.Writer, r budgetReport) {
 	fmt.Fprintf(w, "  RAM      %8d of %8d bytes  %5.1f%%  %s\n", r.RAMBytes, v.Profile.RAMBytes, 100*v.RAMUse, yesNo(v.RAMFits))
 	fmt.Fprintf(w, "  flash    %8d of %8d bytes  %5.1f%%  %s\n", r.FlashBytes, v.Profile.FlashBytes, 100*v.FlashUse, yesNo(v.FlashFits))
 	fmt.Fprintf(w, "  compute  %8.0f of %8.0f MAC/s  %5.1f%%  %s\n", r.MACsPerSecond, v.Profile.MACsPerSecond, 100*v.ComputeUse, yesNo(v.ComputeFits))
-	fmt.Fprintf(w, "verdict: %s\n", map[bool]string{true: "fits", false: "does not fit"}[v.Fits])
+	fmt.Fprintf(w, "network alone: %s\n\n", map[bool]string{true: "fits", false: "does not fit"}[v.Fits])
+	printWholePath(w, r.FrontEndConfig, r.FrontEnd, r.WholePath, r.MACsPerSecond, r.RAMBytes, r.FlashBytes, v.Profile)
+}
+
+// printWholePath prints the front end beside the network, per resource.
+func printWholePath(w io.Writer, cfg features.Config, fe features.DeviceCost, wp wholePath, netMACs float64, netRAM, netFlash int64, p nn.Profile) {
+	fmt.Fprintf(w, "whole path, C front end %d Hz, window %d, hop %d, FFT %d, %d bands (%.2f frames/s, %d flops/frame):\n",
+		cfg.SampleRateHz, cfg.WindowSamples, cfg.HopSamples, cfg.FFTSize, cfg.Bands, fe.FramesPerSecond, fe.FlopsPerFrame)
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintln(tw, "resource\tfront end\tnetwork\tcode\twhole path\tbudget\tuse\t\t")
+	fmt.Fprintf(tw, "compute /s\t%.0f flop\t%.0f MAC\t\t%.0f\t%.0f\t%.1f%%\t%s\t\n", fe.FlopsPerSecond, netMACs, wp.ComputePerSecond, p.MACsPerSecond, 100*wp.ComputeUse, yesNo(wp.ComputeFits))
+	fmt.Fprintf(tw, "RAM bytes\t%d\t%d\t\t%d\t%d\t%.1f%%\t%s\t\n", fe.RAMBytes, netRAM, wp.RAMBytes, p.RAMBytes, 100*wp.RAMUse, yesNo(wp.RAMFits))
+	fmt.Fprintf(tw, "flash bytes\t%d\t%d\t%d\t%d\t%d\t%.1f%%\t%s\t\n", fe.TableBytes, netFlash, wp.CodeBytes, wp.FlashBytes, p.FlashBytes, 100*wp.FlashUse, yesNo(wp.FlashFits))
+	tw.Flush()
+	fmt.Fprintf(w, "(front-end flops charged one MAC each; front-end RAM: audio ring %d, FFT work %d, log-mel %d, feature window %d, state %d)\n",
+		fe.RingBytes, fe.WorkBytes, fe.LogMelBytes, fe.FeatureBytes, fe.StateBytes)
+	fmt.Fprintf(w, "verdict: %s\n", map[bool]string{true: "fits", false: "does not fit"}[wp.Fits])
 }

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -44,6 +45,24 @@ type demoReport struct {
 	Model            string  `json:"model"`
 	QModel           string  `json:"int8_model"`
 	Export           string  `json:"export_dir"`
+	// the whole path (C front end + network) and the emulated board
+	FrontEnd     features.DeviceCost `json:"front_end"`
+	WholePath    wholePath           `json:"whole_path"`
+	FrontEndTest *frontEndCheck      `json:"front_end_check,omitempty"` // host C front end on the test fold
+	Onchip       *onchipReport       `json:"onchip,omitempty"`          // nil when the cross tools are missing
+	OnchipNote   string              `json:"onchip_note,omitempty"`
+}
+
+// frontEndCheck compares the C front end (host build) with the Go front
+// end on every test-fold clip.
+type frontEndCheck struct {
+	Clips           int  `json:"clips"`
+	Windows         int  `json:"windows"`
+	Values          int  `json:"values"`
+	Identical       int  `json:"identical"`
+	WorstLSB        int  `json:"worst_lsb"`
+	SamePredictions int  `json:"same_predictions"` // C front end + C network vs Go front end + Go engine
+	LogitsBitExact  bool `json:"logits_bit_exact"` // C network on the C features vs the Go engine on them
 }
 
 func newDemoCmd() *cobra.Command {
@@ -79,7 +98,7 @@ the Go engine, and prints a summary. It exits non-zero if any step fails.`,
 	return cmd
 }
 
-func step(w io.Writer, n int, what string) { fmt.Fprintf(w, "\n[%d/7] %s\n", n, what) }
+func step(w io.Writer, n int, what string) { fmt.Fprintf(w, "\n[%d/9] %s\n", n, what) }
 
 func runDemo(out, cc string, epochs int, stderr io.Writer) (*demoReport, error) {
 	t0 := time.Now()
@@ -216,8 +235,126 @@ func runDemo(out, cc string, epochs int, stderr io.Writer) (*demoReport, error) 
 	}
 	rep.BitExact, rep.BitExactWindows = true, len(few)
 	fmt.Fprintf(stderr, "%d windows × %d layers: same bits\n", len(few), len(sizes))
+
+	step(stderr, 8, "C front end + C network (host) on every test clip against the Go path")
+	fe, _, err := deviceFrontEnd(q)
+	if err != nil {
+		return nil, err
+	}
+	rep.FrontEnd, err = features.CostOnDevice(fe.Config, fe.Frames)
+	if err != nil {
+		return nil, err
+	}
+	rep.WholePath = newWholePath(cost, v, rep.FrontEnd, nn.Profiles["m4-half"])
+	rep.Fits = rep.Fits && rep.WholePath.Fits
+	var recording []*features.Audio
+	if rep.FrontEndTest, recording, err = checkFrontEnd(q, fe, corpus, test, set, filepath.Join(out, "cfe"), ccPath); err != nil {
+		return nil, err
+	}
+	fc := rep.FrontEndTest
+	fmt.Fprintf(stderr, "%d clips: %d/%d int8 features identical (worst %d LSB), %d/%d same predictions, logits bit-exact: %v\n",
+		fc.Clips, fc.Identical, fc.Values, fc.WorstLSB, fc.SamePredictions, fc.Windows, fc.LogitsBitExact)
+
+	step(stderr, 9, "emulated Cortex-M4 (arm-none-eabi-gcc, QEMU mps2-an386) on test windows and a recording")
+	if _, err := cref.FindM4Tools(); err != nil {
+		rep.OnchipNote = "skipped: " + err.Error()
+		fmt.Fprintln(stderr, rep.OnchipNote)
+	} else {
+		rec := joinAudio(recording[:min(8, len(recording))]) // 8 s of the held-out fold
+		if rep.Onchip, err = runOnchip(q, rec, 4, 160, filepath.Join(out, "m4")); err != nil {
+			return nil, err
+		}
+		oc := rep.Onchip
+		fmt.Fprintf(stderr, "logits bit-exact: %v (test inputs), %v (%d recording inputs); %.2f instructions per MAC; stack %d B\n",
+			oc.LogitsBitExact, oc.RecLogitsExact, oc.RecordingInputs, oc.InstrPerMAC, oc.StackBytes)
+		if !oc.LogitsBitExact || !oc.RecLogitsExact {
+			return nil, fmt.Errorf("the emulated Cortex-M4's logits differ from the Go engine's")
+		}
+	}
 	rep.Seconds = time.Since(t0).Seconds()
 	return rep, nil
+}
+
+// checkFrontEnd builds the C front end and the C network for the host and
+// runs every test clip, as 16-bit PCM, through both; it compares the int8
+// features and predictions with the Go path (set: the test windows as the
+// Go front end made them, in clip order) and returns the clips' audio.
+func checkFrontEnd(q *quant.Model, fe cref.FrontEnd, corpus *datasets.Corpus, test []int, set *datasets.Set, dir, cc string) (*frontEndCheck, []*features.Audio, error) {
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return nil, nil, err
+	}
+	blob, doc, err := quant.Export(q)
+	if err != nil {
+		return nil, nil, err
+	}
+	hdr, _, err := cref.FrontEndCHeader(fe, cPrefix)
+	if err != nil {
+		return nil, nil, err
+	}
+	exe, err := cref.BuildFrontEnd(dir, hdr, quant.CHeader(blob, doc, cPrefix), cPrefix, cc, false)
+	if err != nil {
+		return nil, nil, err
+	}
+	byClip := map[int][]int{} // clip ID → window indices of set, in order
+	for i, w := range set.Windows {
+		byClip[w.Clip] = append(byClip[w.Clip], i)
+	}
+	r := &frontEndCheck{LogitsBitExact: true}
+	x := make([]float32, set.InputSize())
+	var audio []*features.Audio
+	for _, id := range test {
+		a, err := features.ReadWAVFile(corpus.Clips[id].Path)
+		if err != nil {
+			return nil, nil, err
+		}
+		if a.SampleRateHz != fe.Config.SampleRateHz {
+			return nil, nil, fmt.Errorf("%s: %d Hz, the model's front end runs at %d Hz", corpus.Clips[id].Path, a.SampleRateHz, fe.Config.SampleRateHz)
+		}
+		audio = append(audio, a)
+		pcm := make([]int16, len(a.Samples))
+		for i, v := range a.Samples {
+			pcm[i] = int16(math.Max(-32768, math.Min(32767, math.Round(float64(v)*32768))))
+		}
+		got, err := cref.RunFrontEnd(exe, pcm, 160, fe.Config.Bands, fe.Frames, q.Layers[len(q.Layers)-1].OutShape.Size())
+		if err != nil {
+			return nil, nil, err
+		}
+		wins := byClip[id]
+		if len(got.Windows) != len(wins) {
+			return nil, nil, fmt.Errorf("%s: the C front end made %d inputs, the Go path %d", corpus.Clips[id].Path, len(got.Windows), len(wins))
+		}
+		r.Clips++
+		for k, wi := range wins {
+			set.Sample(wi, 0, x)
+			want := make([]int8, len(x))
+			q.InputQ.QuantizeInput(want, x)
+			for i, v := range got.Windows[k] {
+				d := int(v) - int(want[i])
+				r.Values++
+				if d == 0 {
+					r.Identical++
+				}
+				r.WorstLSB = max(r.WorstLSB, d, -d)
+			}
+			r.Windows++
+			cOut := q.RunAll(got.Windows[k])
+			r.LogitsBitExact = r.LogitsBitExact && bytes.Equal(int8Bytes(cOut[len(cOut)-1]), int8Bytes(got.Logits[k]))
+			goOut := q.RunAll(want)
+			if argmax(got.Logits[k]) == argmax(goOut[len(goOut)-1]) {
+				r.SamePredictions++
+			}
+		}
+	}
+	return r, audio, nil
+}
+
+// joinAudio concatenates clips of one rate into one recording.
+func joinAudio(clips []*features.Audio) *features.Audio {
+	out := &features.Audio{SampleRateHz: clips[0].SampleRateHz, Channels: 1, BitDepth: 16}
+	for _, c := range clips {
+		out.Samples = append(out.Samples, c.Samples...)
+	}
+	return out
 }
 
 func int8Bytes(v []int8) []byte {
@@ -246,9 +383,28 @@ func printDemo(w io.Writer, r *demoReport) {
 	fmt.Fprintf(tw, "  flash (blob)\t%d B\t%d KiB\t%s\n", r.FlashBytes, p.FlashBytes>>10, fits(r.FlashFits))
 	fmt.Fprintf(tw, "  RAM (pool)\t%d B\t%d KiB\t%s\n", r.RAMBytes, p.RAMBytes>>10, fits(r.RAMFits))
 	tw.Flush()
+	wp := r.WholePath
+	fmt.Fprintf(w, "\n  whole path (C front end %.0f flop/s, %d B RAM, %d B tables; code %d B):\n", r.FrontEnd.FlopsPerSecond, r.FrontEnd.RAMBytes, r.FrontEnd.TableBytes, wp.CodeBytes)
+	tw = tabwriter.NewWriter(w, 0, 0, 3, ' ', 0)
+	fmt.Fprintf(tw, "  compute\t%.0f /s\t%.1f M/s\t%s\n", wp.ComputePerSecond, p.MACsPerSecond/1e6, fits(wp.ComputeFits))
+	fmt.Fprintf(tw, "  flash\t%d B\t%d KiB\t%s\n", wp.FlashBytes, p.FlashBytes>>10, fits(wp.FlashFits))
+	fmt.Fprintf(tw, "  RAM\t%d B\t%d KiB\t%s\n", wp.RAMBytes, p.RAMBytes>>10, fits(wp.RAMFits))
+	tw.Flush()
 	fmt.Fprintf(w, "\n  MACs per inference   %d (%d parameters)\n", r.MACs, r.Params)
 	fmt.Fprintf(w, "  C reference          %s on %d test windows, every layer\n", map[bool]string{true: "bit-exact", false: "DIFFERS"}[r.BitExact], r.BitExactWindows)
 	fmt.Fprintf(w, "  export round trip    identical logits on all %d test windows\n", r.RoundTripWindows)
+	if fc := r.FrontEndTest; fc != nil {
+		fmt.Fprintf(w, "  C front end          %d/%d int8 features as Go's (worst %d LSB), %d/%d same predictions on the test windows\n",
+			fc.Identical, fc.Values, fc.WorstLSB, fc.SamePredictions, fc.Windows)
+	}
+	if oc := r.Onchip; oc != nil {
+		fmt.Fprintf(w, "  emulated Cortex-M4   logits %s; code %d B, const %d B, static RAM %d B, stack %d B\n",
+			map[bool]string{true: "bit-exact", false: "DIFFER"}[oc.LogitsBitExact && oc.RecLogitsExact], oc.Sizes.RuntimeCode+oc.Sizes.FrontEndCode, oc.ConstBytes, oc.StaticRAM, oc.StackBytes)
+		fmt.Fprintf(w, "                       %.0f instructions/frame, %.0f /inference (%.2f per MAC); QEMU counts instructions, not cycles\n",
+			oc.InstrPerFrame, oc.InstrPerInference, oc.InstrPerMAC)
+	} else if r.OnchipNote != "" {
+		fmt.Fprintf(w, "  emulated Cortex-M4   %s\n", r.OnchipNote)
+	}
 	fmt.Fprintf(w, "  files                %s, %s, %s/\n", r.Model, r.QModel, r.Export)
 	fmt.Fprintf(w, "  time                 %.1f s\n", r.Seconds)
 }

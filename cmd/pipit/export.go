@@ -1,6 +1,7 @@
 package main
 
 import (
+	"encoding/json"
 	"fmt"
 	"io"
 	"os"
@@ -8,6 +9,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"github.com/pipit-audio/pipit/datasets"
 	"github.com/pipit-audio/pipit/internal/fsutil"
 	"github.com/pipit-audio/pipit/quant"
 	"github.com/pipit-audio/pipit/quant/cref"
@@ -19,6 +21,10 @@ type exportReport struct {
 	Scheme        string   `json:"scheme"`
 	Header        string   `json:"header"`
 	Runtime       []string `json:"runtime"`
+	FrontEnd      []string `json:"front_end,omitempty"` // generated header, pipit_fe.h, pipit_fe.c
+	FrontEndRAM   int      `json:"front_end_ram_bytes,omitempty"`
+	FrontEndFlash int      `json:"front_end_table_bytes,omitempty"`
+	FrontEndNote  string   `json:"front_end_note,omitempty"` // why no C front end was written
 	FlashBytes    int      `json:"flash_bytes"`
 	WeightBytes   int      `json:"weight_bytes"`
 	OverheadBytes int      `json:"overhead_bytes"`
@@ -43,6 +49,9 @@ func newExportCmd() *cobra.Command {
                      layers in execution order, memory plan, totals
   pipit_net.h        the blob as a const array, the layer table and #defines
   pipit_rt.h/.c      the C99 reference runtime that runs pipit_net.h
+  pipit_net_fe.h     the front end's tables (window, twiddles, mel triangles,
+                     band statistics, input quantisation) for pipit_fe.c
+  pipit_fe.h/.c      the C99 front end: 16-bit PCM in, int8 network input out
 The format is documented in docs/export-format.md.`,
 		Args: cobra.NoArgs,
 	}
@@ -85,8 +94,29 @@ func runExport(q *quant.Model, dir string) (*exportReport, error) {
 		Runtime:    []string{filepath.Join(dir, "pipit_rt.h"), filepath.Join(dir, "pipit_rt.c")},
 		FlashBytes: doc.Totals.FlashBytes, WeightBytes: doc.Totals.WeightBytes, OverheadBytes: doc.Totals.OverheadBytes,
 		RAMBytes: doc.Totals.RAMBytes, MACs: doc.Totals.MACs, CRC32: doc.Blob.CRC32}
-	for path, data := range map[string][]byte{rep.Blob: blob, rep.Scheme: scheme, rep.Header: []byte(quant.CHeader(blob, doc, cPrefix)),
-		rep.Runtime[0]: cref.RuntimeHeader, rep.Runtime[1]: cref.RuntimeSource} {
+	files := map[string][]byte{rep.Blob: blob, rep.Header: []byte(quant.CHeader(blob, doc, cPrefix)),
+		rep.Runtime[0]: cref.RuntimeHeader, rep.Runtime[1]: cref.RuntimeSource}
+	if fe, note, err := deviceFrontEnd(q); err != nil {
+		return nil, err
+	} else if note != "" {
+		rep.FrontEndNote = note
+	} else {
+		hdr, lay, err := cref.FrontEndCHeader(fe, cPrefix)
+		if err != nil {
+			return nil, err
+		}
+		if doc.FrontEnd, err = json.Marshal(lay); err != nil {
+			return nil, err
+		}
+		rep.FrontEnd = []string{filepath.Join(dir, lay.Header), filepath.Join(dir, "pipit_fe.h"), filepath.Join(dir, "pipit_fe.c")}
+		rep.FrontEndRAM, rep.FrontEndFlash = lay.Cost.RAMBytes, lay.Cost.TableBytes
+		files[rep.FrontEnd[0]], files[rep.FrontEnd[1]], files[rep.FrontEnd[2]] = []byte(hdr), cref.FrontEndHeader, cref.FrontEndSource
+		if scheme, err = doc.MarshalScheme(); err != nil {
+			return nil, err
+		}
+	}
+	files[rep.Scheme] = scheme
+	for path, data := range files {
 		if err := fsutil.WriteFile(path, data); err != nil {
 			return nil, err
 		}
@@ -98,8 +128,33 @@ func runExport(q *quant.Model, dir string) (*exportReport, error) {
 	return rep, nil
 }
 
+// deviceFrontEnd returns the C front end of a quantised model from its
+// model info (front end, band statistics, window); ok is false for a model
+// without model info (one not trained by pipit train) or with an FFT size
+// the C front end does not support, note says why there is none.
+func deviceFrontEnd(q *quant.Model) (fe cref.FrontEnd, note string, err error) {
+	if len(q.Meta) == 0 {
+		return fe, "no C front end: the model records no front end", nil
+	}
+	info, err := datasets.ParseModelInfo("model", q.Meta)
+	if err != nil {
+		return fe, "", err
+	}
+	if n := info.FrontEnd.FFTSize; n&(n-1) != 0 {
+		return fe, fmt.Sprintf("no C front end: FFT size %d is not a power of two", n), nil
+	}
+	return cref.FrontEnd{Config: info.FrontEnd, Stats: info.Stats, InputScale: q.InputQ.Scale, InputZeroPoint: q.InputQ.ZeroPoint,
+		Frames: info.Window.Frames, HopFrames: info.Window.HopFrames()}, "", nil
+}
+
 func printExport(w io.Writer, r *exportReport) {
 	fmt.Fprintf(w, "exported to %s:\n  %s (%d bytes: %d int8 weights + %d bytes of bias, multipliers, shifts, header and table; CRC-32 %s)\n  %s\n  %s, %s, %s\n",
 		r.Dir, r.Blob, r.FlashBytes, r.WeightBytes, r.OverheadBytes, r.CRC32, r.Scheme, r.Header, r.Runtime[0], r.Runtime[1])
 	fmt.Fprintf(w, "RAM pool %d bytes, %d MACs per inference\n", r.RAMBytes, r.MACs)
+	if r.FrontEndNote != "" {
+		fmt.Fprintln(w, r.FrontEndNote)
+	}
+	if len(r.FrontEnd) > 0 {
+		fmt.Fprintf(w, "C front end %s, %s, %s: %d bytes of RAM, %d bytes of tables\n", r.FrontEnd[0], r.FrontEnd[1], r.FrontEnd[2], r.FrontEndRAM, r.FrontEndFlash)
+	}
 }

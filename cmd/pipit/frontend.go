@@ -35,8 +35,10 @@ func addFrontEndFlags(cmd *cobra.Command) *frontEndFlags {
 }
 
 // config resolves the defaults that depend on other flags and validates.
-func (f *frontEndFlags) config() (features.Config, error) {
-	c := f.cfg
+func (f *frontEndFlags) config() (features.Config, error) { return f.resolve(f.cfg) }
+
+// resolve is config for c, the flags' settings with some fields changed.
+func (f *frontEndFlags) resolve(c features.Config) (features.Config, error) {
 	if c.FFTSize == 0 {
 		c.FFTSize = c.WindowSamples
 	}

@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"github.com/pipit-audio/pipit/quant/cref"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -115,7 +116,33 @@ func TestDemoRuns(t *testing.T) {
 	if !rep.BitExact || rep.BitExactWindows == 0 || rep.RoundTripWindows != 64 || rep.MACs != 475072 || rep.RAMBytes != 12480 || rep.FlashBytes == 0 || !rep.Fits {
 		t.Errorf("demo report %+v", rep)
 	}
-	for _, f := range []string{"model.blob", "model.scheme.json", "pipit_net.h", "pipit_rt.c", "pipit_rt.h"} {
+	// the whole path and the C front end on every test clip
+	if fc := rep.FrontEndTest; fc == nil || fc.Windows != 64 || fc.Values != 64*40*61 || float64(fc.Identical) < 0.999*float64(fc.Values) || fc.WorstLSB > 1 || fc.SamePredictions != fc.Windows || !fc.LogitsBitExact {
+		t.Errorf("C front end on the test fold: %+v", rep.FrontEndTest)
+	}
+	if wp := rep.WholePath; wp.ComputePerSecond != rep.MACsPerSecond+rep.FrontEnd.FlopsPerSecond || !wp.Fits {
+		t.Errorf("whole path %+v", wp)
+	}
+	if _, err := cref.FindM4Tools(); err != nil {
+		t.Logf("emulated Cortex-M4 not checked: %v", err)
+	} else {
+		oc := rep.Onchip
+		if oc == nil || !oc.LogitsBitExact || !oc.RecLogitsExact || oc.SamePredictions != oc.RecordingInputs || oc.FeaturesWorstLSB > 1 ||
+			oc.ConstBytes != oc.ConstModel || oc.StaticRAM != oc.StaticRAMModel || oc.StackBytes <= 0 || oc.InstrPerMAC <= 0 {
+			t.Errorf("emulated run: %+v", oc)
+		}
+		// the command on its own, on the demo's model and one held-out clip
+		clips, _ := filepath.Glob(filepath.Join(rep.Corpus, "*", "*.wav"))
+		out, err := run(t, "onchip", "--model", rep.QModel, "--wav", clips[0], "--json")
+		if err != nil {
+			t.Fatal(err)
+		}
+		var o onchipReport
+		if err := json.Unmarshal([]byte(out), &o); err != nil || !o.LogitsBitExact || !o.RecLogitsExact || o.RecordingInputs != 1 {
+			t.Errorf("pipit onchip: %v %+v", err, o)
+		}
+	}
+	for _, f := range []string{"model.blob", "model.scheme.json", "pipit_net.h", "pipit_rt.c", "pipit_rt.h", "pipit_net_fe.h", "pipit_fe.h", "pipit_fe.c"} {
 		if _, err := os.Stat(filepath.Join(rep.Export, f)); err != nil {
 			t.Errorf("export lacks %s", f)
 		}

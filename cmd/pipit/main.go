@@ -29,7 +29,7 @@ func newRootCmd(stdout, stderr io.Writer) *cobra.Command {
 	}
 	root.SetOut(stdout)
 	root.SetErr(stderr)
-	root.AddCommand(newMelspecCmd(), newBudgetCmd(), newSynthCmd(), newTrainCmd(), newEvalCmd(), newQuantizeCmd(), newExportCmd(), newTimelineCmd(), newDemoCmd())
+	root.AddCommand(newMelspecCmd(), newBudgetCmd(), newSynthCmd(), newTrainCmd(), newEvalCmd(), newQuantizeCmd(), newExportCmd(), newTimelineCmd(), newLogbookCmd(), newDemoCmd())
 	return root
 }
 

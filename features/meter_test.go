@@ -168,10 +168,10 @@ func TestTimeWeightingToneBurst(t *testing.T) {
 	}
 }
 
-// soxStats reads testdata/wav/level_sox_stats.txt (written by
+// soxStats reads testdata/levels/level_sox_stats.txt (written by
 // testdata/gen/make_level_wavs.sh from SoX's "RMS lev dB").
 func soxStats(t *testing.T) map[string]float64 {
-	f, err := os.Open(filepath.Join("..", "testdata", "wav", "level_sox_stats.txt"))
+	f, err := os.Open(filepath.Join("..", "testdata", "levels", "level_sox_stats.txt"))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -195,7 +195,7 @@ func soxStats(t *testing.T) map[string]float64 {
 // meterFile returns the Leq of a fixture through weighting w.
 func meterFile(t *testing.T, name, w string) float64 {
 	t.Helper()
-	a, err := ReadWAVFile(filepath.Join("..", "testdata", "wav", name))
+	a, err := ReadWAVFile(filepath.Join("..", "testdata", "levels", name))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -241,7 +241,7 @@ func TestMeterLeqSoxFixtures(t *testing.T) {
 	t.Logf("noise: LAeq a %.3f, b %.3f, a+b %.3f dB (+%.3f dB)", la, lb, lab, lab-la)
 	// The frequency-domain A weighting (ALevelDBFS, an independent
 	// implementation) agrees on broadband noise.
-	a, _ := ReadWAVFile(filepath.Join("..", "testdata", "wav", "level_noise_a.wav"))
+	a, _ := ReadWAVFile(filepath.Join("..", "testdata", "levels", "level_noise_a.wav"))
 	if fd, _ := ALevelDBFS(a.Samples, a.SampleRateHz); math.Abs(fd-la) > 0.1 {
 		t.Errorf("noise: time-domain LAeq %.3f dB, frequency-domain %.3f dB", la, fd)
 	}

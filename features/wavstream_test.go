@@ -32,7 +32,9 @@ func readAllBlocks(r *WAVReader, n int) ([]float32, error) {
 // block size.
 func TestWAVReaderMatchesDecodeWAV(t *testing.T) {
 	paths, _ := filepath.Glob(filepath.Join("..", "testdata", "wav", "*.wav"))
-	if len(paths) < 10 {
+	levels, _ := filepath.Glob(filepath.Join("..", "testdata", "levels", "*.wav"))
+	paths = append(paths, levels...)
+	if len(paths) < 16 {
 		t.Fatalf("only %d fixtures", len(paths))
 	}
 	for _, p := range paths {

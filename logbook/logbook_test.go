@@ -195,7 +195,7 @@ func TestMinDurationAndCalibration(t *testing.T) {
 	if d := cal.Events[0].LAeq - base.Events[0].LAeq; math.Abs(d-120) > 1e-9 || math.Abs(cal.Summary.LAF90-base.Summary.LAF90-120) > 1e-9 && !math.IsInf(base.Summary.LAF90, -1) {
 		t.Errorf("offset 120 dB shifted the event by %.3f dB", d)
 	}
-	c, err := CalibratorCalibration(filepath.Join("..", "testdata", "wav", "level_cal1k_m9.wav"), 94)
+	c, err := CalibratorCalibration(filepath.Join("..", "testdata", "levels", "level_cal1k_m9.wav"), 94)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -207,10 +207,10 @@ func TestMinDurationAndCalibration(t *testing.T) {
 		t.Errorf("reference %q does not name the calibrator file and level", c.Reference())
 	}
 	// Noise is no calibrator tone.
-	if _, err := CalibratorCalibration(filepath.Join("..", "testdata", "wav", "level_noise_a.wav"), 94); err != nil {
+	if _, err := CalibratorCalibration(filepath.Join("..", "testdata", "levels", "level_noise_a.wav"), 94); err != nil {
 		t.Logf("noise as calibrator: %v", err)
 	}
-	if _, err := CalibratorCalibration(filepath.Join("..", "testdata", "wav", "level_sine1k_m20.wav"), 94); err == nil {
+	if _, err := CalibratorCalibration(filepath.Join("..", "testdata", "levels", "level_sine1k_m20.wav"), 94); err == nil {
 		t.Error("a 1 s recording was accepted as a calibrator recording")
 	}
 	if _, err := OffsetCalibration(math.NaN()); err == nil {

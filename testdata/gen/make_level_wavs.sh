@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
-# Regenerates the level fixtures testdata/wav/level_*.wav with SoX (Debian
+# Regenerates the level fixtures testdata/levels/level_*.wav with SoX (Debian
 # package "sox") and records SoX's own RMS figures of them in
-# testdata/wav/level_sox_stats.txt, the outside reference of the meter tests
+# testdata/levels/level_sox_stats.txt, the outside reference of the meter tests
 # (features/meter_test.go). All files are mono, 16 kHz, undithered (-D).
 #   level_sine1k_full_f32.wav  1 s, 1 kHz sine at amplitude 1, 32-bit float
 #                              (a full-scale sine: -3.01 dB re full scale)
@@ -13,7 +13,7 @@
 #   level_noise_ab.wav         a + b mixed at unit gain each (-v 1), so it is
 #                              3.01 dB above either
 set -euo pipefail
-cd "$(dirname "$0")/../wav"
+cd "$(dirname "$0")/../levels"
 s16="-b 16 -e signed-integer -t wavpcm"
 sox -D -r 16000 -c 1 -n -b 32 -e floating-point -t wavpcm level_sine1k_full_f32.wav synth 1 sine 1000
 sox -D -r 16000 -c 1 -n $s16 level_sine1k_m20.wav synth 1 sine 1000 vol 0.1

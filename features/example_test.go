@@ -89,3 +89,21 @@ func ExampleCostOnDevice() {
 	// 62.5 frames/s × 15393 flops = 962062 flop/s; RAM 5728 B, tables 6632 B
 	// hop 512: 481031 flop/s
 }
+
+// Meter a recording and read its A-weighted Leq and maximum F level, as
+// a noise monitor does for each stretch of a long recording.
+func ExampleMeter() {
+	m, err := features.NewMeter(features.MeterConfig{RateHz: 16000, Weighting: features.WeightingA})
+	if err != nil {
+		panic(err)
+	}
+	x := make([]float32, 2*16000) // 2 s of a 1 kHz tone at amplitude 0.1
+	for n := range x {
+		x[n] = float32(0.1 * math.Sin(2*math.Pi*1000*float64(n)/16000))
+	}
+	s := features.LevelSeries{RateHz: 16000, TickSec: m.Config().TickSec}
+	s.Ticks = m.Flush(m.Push(nil, x))
+	fmt.Printf("LAeq %.1f dB re full scale, LAFmax %.1f dB, SEL %.1f dB\n", s.Leq(0, 2), s.FastMax(0, 2), s.SEL(0, 2))
+	// Output:
+	// LAeq -23.0 dB re full scale, LAFmax -23.0 dB, SEL -20.0 dB
+}

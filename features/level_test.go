@@ -5,6 +5,18 @@ import (
 	"testing"
 )
 
+// iecTable3A and iecTable3C are the nominal A and C weightings of
+// IEC 61672-1:2013 Table 3 at the 34 nominal frequencies 10 Hz … 20 kHz;
+// entry i belongs to the exact base-10 frequency iecTable3Freq(i).
+var (
+	iecTable3A = []float64{-70.4, -63.4, -56.7, -50.5, -44.7, -39.4, -34.6, -30.2, -26.2, -22.5, -19.1, -16.1, -13.4, -10.9, -8.6, -6.6, -4.8, -3.2, -1.9, -0.8, 0, 0.6, 1.0, 1.2, 1.3, 1.2, 1.0, 0.5, -0.1, -1.1, -2.5, -4.3, -6.6, -9.3}
+	iecTable3C = []float64{-14.3, -11.2, -8.5, -6.2, -4.4, -3.0, -2.0, -1.3, -0.8, -0.5, -0.3, -0.2, -0.1, 0, 0, 0, 0, 0, 0, 0, 0, 0, -0.1, -0.2, -0.3, -0.5, -0.8, -1.3, -2.0, -3.0, -4.4, -6.2, -8.5, -11.2}
+)
+
+// iecTable3Freq returns the exact base-10 frequency 1000·10^((i−20)/10) Hz
+// of entry i of the Table 3 columns.
+func iecTable3Freq(i int) float64 { return 1000 * math.Pow(10, float64(i-20)/10) }
+
 func TestWeightingsAgainstIEC61672(t *testing.T) {
 	// Nominal A and C weightings of IEC 61672-1:2013 Table 3, read from two
 	// independent transcriptions that agree (python-acoustics,
@@ -13,10 +25,9 @@ func TestWeightingsAgainstIEC61672(t *testing.T) {
 	// expressions (E.1, E.6) reproduce them to the printed 0.1 dB when
 	// evaluated at the exact base-10 frequencies f = 1000·10^(n/10),
 	// n = −20…13 (at the nominal frequencies some round differently).
-	A := []float64{-70.4, -63.4, -56.7, -50.5, -44.7, -39.4, -34.6, -30.2, -26.2, -22.5, -19.1, -16.1, -13.4, -10.9, -8.6, -6.6, -4.8, -3.2, -1.9, -0.8, 0, 0.6, 1.0, 1.2, 1.3, 1.2, 1.0, 0.5, -0.1, -1.1, -2.5, -4.3, -6.6, -9.3}
-	C := []float64{-14.3, -11.2, -8.5, -6.2, -4.4, -3.0, -2.0, -1.3, -0.8, -0.5, -0.3, -0.2, -0.1, 0, 0, 0, 0, 0, 0, 0, 0, 0, -0.1, -0.2, -0.3, -0.5, -0.8, -1.3, -2.0, -3.0, -4.4, -6.2, -8.5, -11.2}
+	A, C := iecTable3A, iecTable3C
 	for i := range A {
-		f := 1000 * math.Pow(10, float64(i-20)/10)
+		f := iecTable3Freq(i)
 		if got := math.Round(AWeightingDB(f)*10) / 10; math.Abs(got-A[i]) > 1e-9 {
 			t.Errorf("A(%.1f Hz) = %.3f dB, table %.1f", f, AWeightingDB(f), A[i])
 		}

@@ -2,6 +2,8 @@ package main
 
 import (
 	"fmt"
+	"os"
+	"path/filepath"
 
 	"github.com/spf13/cobra"
 
@@ -10,6 +12,7 @@ import (
 
 func newSynthCmd() *cobra.Command {
 	var cfg datasets.SynthConfig
+	var day datasets.DayConfig
 	var out string
 	var asJSON bool
 	cmd := &cobra.Command{
@@ -19,7 +22,14 @@ func newSynthCmd() *cobra.Command {
 ` + fmt.Sprint(datasets.SynthClasses) + `.
 Every clip draws its own parameters and sits on pink background noise at a
 random SNR. Files go to DIR/<class>/, with DIR/manifest.csv holding
-path,label,fold,group; folds are assigned from --seed.`,
+path,label,fold,group; folds are assigned from --seed.
+
+With --day SECONDS it writes instead one long recording of a day at the
+yard, DIR/yard-day.wav, with events of the classes at known times and
+A-weighted levels (--day-event-db-min … --day-event-db-max, dB re full scale)
+over a pink background (--day-background-db), and its ground truth
+DIR/yard-day.truth.csv (start_s,end_s,class,level_db). It streams to disk,
+so days of hours take little memory.`,
 		Args: cobra.NoArgs,
 	}
 	f := cmd.Flags()
@@ -30,8 +40,15 @@ path,label,fold,group; folds are assigned from --seed.`,
 	f.IntVar(&cfg.Folds, "folds", 5, "number of folds")
 	f.Uint64Var(&cfg.Seed, "seed", 1, "random seed")
 	f.BoolVar(&asJSON, "json", false, "print a JSON summary")
+	f.Float64Var(&day.Seconds, "day", 0, "write one long recording of this many seconds instead of the corpus")
+	f.Float64Var(&day.BackgroundDB, "day-background-db", -50, "A-weighted background level of the day, dB re full scale")
+	f.Float64Var(&day.MinEventDB, "day-event-db-min", -32, "lowest event level of the day, dB re full scale")
+	f.Float64Var(&day.MaxEventDB, "day-event-db-max", -18, "highest event level of the day, dB re full scale")
 	cmd.MarkFlagRequired("out")
 	cmd.RunE = func(cmd *cobra.Command, _ []string) error {
+		if day.Seconds > 0 {
+			return runSynthDay(cmd, out, day, cfg, asJSON)
+		}
 		b := newTask(cmd.ErrOrStderr(), "synth")
 		c, err := datasets.Synthesize(out, cfg, func(done, total int) { b.step(done, total, "clips", "") })
 		if err != nil {
@@ -45,4 +62,21 @@ path,label,fold,group; folds are assigned from --seed.`,
 		return nil
 	}
 	return cmd
+}
+
+func runSynthDay(cmd *cobra.Command, out string, day datasets.DayConfig, cfg datasets.SynthConfig, asJSON bool) error {
+	day.RateHz, day.Seed = cfg.RateHz, cfg.Seed
+	if err := os.MkdirAll(out, 0o755); err != nil {
+		return err
+	}
+	wav, truth := filepath.Join(out, "yard-day.wav"), filepath.Join(out, "yard-day.truth.csv")
+	events, err := datasets.SynthDay(wav, truth, day)
+	if err != nil {
+		return err
+	}
+	if asJSON {
+		return printJSON(cmd.OutOrStdout(), map[string]any{"wav": wav, "truth": truth, "events": len(events), "seconds": day.Seconds})
+	}
+	fmt.Fprintf(cmd.OutOrStdout(), "wrote %s (%s) with %d events; ground truth %s\n", wav, day, len(events), truth)
+	return nil
 }

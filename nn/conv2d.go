@@ -262,9 +262,7 @@ func (l *Conv2D) runShard(phase, s, lo, hi int) {
 			kernels.ConvWeightGrad(g, oc, xi, di, l.grads.w[s], l.cols[s], l.scratch[s])
 			l.biasGrad(s, di, pos)
 			if l.dx != nil {
-				dc := l.dcols[s]
-				kernels.GemmNNSet(pos, k, oc, di, l.Weight, dc)
-				kernels.Col2im(g, dc, l.dx[i*inSize:(i+1)*inSize])
+				kernels.ConvInputGrad(g, oc, l.Weight, di, l.dx[i*inSize:(i+1)*inSize], l.dcols[s])
 			}
 		}
 	}

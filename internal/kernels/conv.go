@@ -132,3 +132,51 @@ func ConvWeightGrad(g ConvGeom, oc int, x, dout, dw, cols, scratch []float32) {
 		}
 	}
 }
+
+// ConvInputGrad adds one sample's input gradient to dx (H, W, C): the
+// adjoint of [ConvForward] applied to dout (OH·OW, oc), with w the
+// untransposed weights (oc, KH·KW·C). With AVX2, when a kernel row's
+// KW·C values are a multiple of 8 and the patches of neighbouring output
+// columns start at least 16 values apart (SW·C ≥ 16, so the rows one
+// kernel call adds to never overlap), it adds dout·W straight into dx
+// per output row and kernel row; otherwise it forms the patch gradients
+// in dcols (g.ColSize() values) and scatters them with [Col2im]. It
+// panics on short slices.
+func ConvInputGrad(g ConvGeom, oc int, w, dout, dx, dcols []float32) {
+	k := g.KH * g.KW * g.C
+	checkLen("ConvInputGrad w", len(w), oc*k)
+	checkLen("ConvInputGrad dout", len(dout), g.OH*g.OW*oc)
+	checkLen("ConvInputGrad dx", len(dx), g.H*g.W*g.C)
+	seg := g.KW * g.C
+	if !useSIMD || seg%8 != 0 || g.SW*g.C < 16 {
+		GemmNNSet(g.OH*g.OW, k, oc, dout, w, dcols)
+		Col2im(g, dcols, dx)
+		return
+	}
+	lo, hi := g.interiorCols()
+	for oh := 0; oh < g.OH; oh++ {
+		for kh := 0; kh < g.KH; kh++ {
+			ih := oh*g.SH - g.PadTop + kh
+			if ih < 0 || ih >= g.H {
+				continue
+			}
+			if hi > lo {
+				gemmBlocked(hi-lo, seg, oc, dout[(oh*g.OW+lo)*oc:], oc, 1, w[kh*seg:], k,
+					dx[(ih*g.W+lo*g.SW-g.PadLeft)*g.C:], g.SW*g.C, true)
+			}
+			for ow := 0; ow < g.OW; ow++ {
+				if ow == lo && hi > lo {
+					ow = hi - 1
+					continue
+				}
+				iw0 := ow*g.SW - g.PadLeft
+				kw0, kw1 := max(0, -iw0), min(g.KW, g.W-iw0)
+				if kw1 <= kw0 {
+					continue
+				}
+				gemmBlocked(1, (kw1-kw0)*g.C, oc, dout[(oh*g.OW+ow)*oc:], 0, 1, w[(kh*g.KW+kw0)*g.C:], k,
+					dx[(ih*g.W+iw0+kw0)*g.C:], 0, true)
+			}
+		}
+	}
+}

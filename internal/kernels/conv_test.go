@@ -55,6 +55,39 @@ func TestConvAgainstIm2col(t *testing.T) {
 						}
 					}
 					dout := randSlice(rng, pos*oc)
+					// input gradient: the adjoint, <dout, conv(x')> = <ConvInputGrad(dout), x'>
+					// checked entry by entry against the naive scatter
+					w := make([]float32, oc*k)
+					Transpose(w, wT, k, oc)
+					dx := randSlice(rng, len(x))
+					dx0 := append([]float32(nil), dx...)
+					ConvInputGrad(g, oc, w, dout, dx, make([]float32, g.ColSize()))
+					wantDx := make([]float64, len(x))
+					for i, v := range dx0 {
+						wantDx[i] = float64(v)
+					}
+					for oh := 0; oh < g.OH; oh++ {
+						for ow := 0; ow < g.OW; ow++ {
+							for kh := 0; kh < g.KH; kh++ {
+								for kw := 0; kw < g.KW; kw++ {
+									ih, iw := oh*g.SH-g.PadTop+kh, ow*g.SW-g.PadLeft+kw
+									if ih < 0 || ih >= g.H || iw < 0 || iw >= g.W {
+										continue
+									}
+									for c := 0; c < g.C; c++ {
+										for o := 0; o < oc; o++ {
+											wantDx[(ih*g.W+iw)*g.C+c] += float64(dout[(oh*g.OW+ow)*oc+o]) * float64(w[o*k+(kh*g.KW+kw)*g.C+c])
+										}
+									}
+								}
+							}
+						}
+					}
+					for i := range dx {
+						if !near(dx[i], wantDx[i]) {
+							t.Fatalf("ConvInputGrad: dx[%d] = %g, want %g", i, dx[i], wantDx[i])
+						}
+					}
 					dw := randSlice(rng, oc*k)
 					dw0 := append([]float32(nil), dw...)
 					ConvWeightGrad(g, oc, x, dout, dw, cols, scratch)

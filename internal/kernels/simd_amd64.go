@@ -16,11 +16,6 @@ var useSIMD = cpu.X86.HasAVX2 && cpu.X86.HasFMA && os.Getenv("PIPIT_NOASM") != "
 //go:noescape
 func dotAVX2(x, y *float32, n int) float32
 
-// axpyAVX2 computes y[i] += a·x[i] for i < n (simd_amd64.s).
-//
-//go:noescape
-func axpyAVX2(a float32, x, y *float32, n int)
-
 // fmaAVX2 computes dst[i] += x[i]·y[i] for i < n (simd_amd64.s).
 //
 //go:noescape

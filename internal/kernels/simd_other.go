@@ -7,8 +7,6 @@ const useSIMD = false
 
 func dotAVX2(x, y *float32, n int) float32 { panic("kernels: no SIMD path on this architecture") }
 
-func axpyAVX2(a float32, x, y *float32, n int) { panic("kernels: no SIMD path on this architecture") }
-
 func fmaAVX2(dst, x, y *float32, n int) { panic("kernels: no SIMD path on this architecture") }
 
 func clampAVX2(dst, src *float32, n int, lo, hi float32) { panic("kernels: no SIMD path") }

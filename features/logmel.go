@@ -86,8 +86,7 @@ func newBlockPath(e *Extractor) *blockPath {
 		starts[m], weights[m] = f.Start, f.Weights
 	}
 	b := &blockPath{fft: blk, bands: fft.NewBands(starts, weights),
-		pow: make([]float32, (n/2+1)*fft.Lanes), mel: make([]float32, e.cfg.Bands*fft.Lanes),
-		col: make([]float32, e.cfg.Bands)}
+		pow: make([]float32, (n/2+1)*fft.Lanes), mel: make([]float32, e.cfg.Bands*fft.Lanes)}
 	for l := range b.scratch {
 		b.scratch[l] = make([]float32, n)
 	}
@@ -220,6 +219,11 @@ func (e *Extractor) computeBlocks(out, samples []float32, nf, pad int) {
 	b := e.blk
 	n := e.cfg.FFTSize
 	magnitude := e.cfg.Spectrum == SpectrumMagnitude
+	scale := 1.0
+	if e.cfg.Log == LogDecibel {
+		scale = 10 / math.Ln10
+	}
+	clip := e.cfg.Log == LogDecibel && e.cfg.TopDB > 0
 	for t0 := 0; t0 < nf; t0 += fft.Lanes {
 		for l := range b.frames {
 			// The FFT buffer of frame t starts offset samples before it.
@@ -240,40 +244,13 @@ func (e *Extractor) computeBlocks(out, samples []float32, nf, pad int) {
 		}
 		b.fft.Power(b.pow, &b.frames, magnitude)
 		b.bands.Apply(b.mel, b.pow)
-		for l := 0; l < fft.Lanes && t0+l < nf; l++ {
-			e.compress(b.col, b.mel[l:], fft.Lanes)
-			for m, v := range b.col {
-				out[m*nf+t0+l] = v
-			}
+		fft.LogScaled(b.mel, e.cfg.LogFloor, scale)
+		if clip {
+			fft.ClipBelowPeak(b.mel, e.cfg.TopDB)
 		}
-	}
-}
-
-// compress writes the log-compressed values of the band sums
-// sums[m·stride] into dst (len Bands), with the floor and the per-frame
-// clip of [Config].
-func (e *Extractor) compress(dst, sums []float32, stride int) {
-	floor := e.cfg.LogFloor
-	db := e.cfg.Log == LogDecibel
-	peak := math.Inf(-1)
-	for m := range dst {
-		v := float64(sums[m*stride])
-		if !(v > floor) { // also maps NaN to the floor
-			v = floor
-		}
-		v = lnPositive(v)
-		if db {
-			v *= 10 / math.Ln10
-			peak = max(peak, v)
-		}
-		dst[m] = float32(v)
-	}
-	if db && e.cfg.TopDB > 0 {
-		lo := float32(peak - e.cfg.TopDB)
-		for m, v := range dst {
-			if v < lo {
-				dst[m] = lo
-			}
+		lanes := min(fft.Lanes, nf-t0)
+		for m := 0; m < e.cfg.Bands; m++ {
+			copy(out[m*nf+t0:m*nf+t0+lanes], b.mel[m*fft.Lanes:])
 		}
 	}
 }

@@ -33,6 +33,7 @@ type Block struct {
 	n, m     int
 	win      []float32 // (N) window, zero outside its span
 	twr, twi []float32 // (M-1) stage twiddles W_2h^j, stages h = M/2, M/4, .., 1
+	tw4      []float32 // radix-4 passes h = M/2, M/8, ..: (h/2, 6) w, w², w³ of W_2h^j
 	spr, spi []float32 // (M+1) split twiddles e^(-2πik/N)
 	rev      []int32   // (M) bit reversal of log2(M) bits
 	re, im   []float32 // (M, Lanes) work arrays
@@ -59,6 +60,14 @@ func NewBlock(n int, window []float64) (*Block, error) {
 			s, c := math.Sincos(-math.Pi * float64(j) / float64(h))
 			b.twr = append(b.twr, float32(c))
 			b.twi = append(b.twi, float32(s))
+		}
+	}
+	for h := m / 2; h >= 2; h /= 4 {
+		for j := 0; j < h/2; j++ {
+			for p := 1; p <= 3; p++ {
+				s, c := math.Sincos(-math.Pi * float64(p*j) / float64(h))
+				b.tw4 = append(b.tw4, float32(c), float32(s))
+			}
 		}
 	}
 	shift := bits.UintSize - bits.Len(uint(m-1))
@@ -96,7 +105,14 @@ func (b *Block) Power(dst []float32, frames *[Lanes][]float32, magnitude bool) {
 			ptrs[l] = &frames[l][0]
 		}
 		loadAVX2(&b.re[0], &b.im[0], &ptrs, &b.win[0], b.n)
-		difAVX2(&b.re[0], &b.im[0], &b.twr[0], &b.twi[0], m)
+		h, off := m/2, 0
+		for ; h >= 2; h /= 4 {
+			dif4AVX2(&b.re[0], &b.im[0], &b.tw4[off], m, h)
+			off += 6 * (h / 2)
+		}
+		if h == 1 { // an odd number of stages: the last one, W = 1
+			difAVX2(&b.re[0], &b.im[0], &b.twr[m-2], &b.twi[m-2], m, 1)
+		}
 		mag := 0
 		if magnitude {
 			mag = 1
@@ -234,4 +250,68 @@ func (s *Bands) Apply(dst, spec []float32) {
 		k += n
 		copy(dst[r*Lanes:], acc[:])
 	}
+}
+
+// ClipBelowPeak raises every value of the (rows, Lanes) array v to at
+// least its lane's maximum minus below, the subtraction done in float64:
+// v[r·Lanes+l] ← max(v[r·Lanes+l], float32(float64(peak_l) - below)).
+// It panics if v is empty or not a whole number of rows.
+func ClipBelowPeak(v []float32, below float64) {
+	if len(v) == 0 || len(v)%Lanes != 0 {
+		panic(fmt.Sprintf("fft: ClipBelowPeak: len(v)=%d, want a positive multiple of %d", len(v), Lanes))
+	}
+	rows := len(v) / Lanes
+	if useAVX2 {
+		clipAVX2(&v[0], rows, below)
+		return
+	}
+	for l := 0; l < Lanes; l++ {
+		peak := v[l]
+		for r := 1; r < rows; r++ {
+			peak = max(peak, v[r*Lanes+l])
+		}
+		lo := float32(float64(peak) - below)
+		for r := 0; r < rows; r++ {
+			v[r*Lanes+l] = max(v[r*Lanes+l], lo)
+		}
+	}
+}
+
+// LogScaled replaces each v[i] by float32(scale·ln(max(v[i], floor))),
+// computed in float64 with an absolute error in the logarithm below 1e-9
+// (TestLogScaledAgainstMathLog); NaN maps to the floor like any value
+// below it. floor must be a normal positive float64 (the front end keeps
+// it ≥ 1e-30) and the values finite. It does not allocate.
+func LogScaled(v []float32, floor, scale float64) {
+	n := 0
+	if useAVX2 {
+		n = len(v) &^ 3
+		if n > 0 {
+			logAVX2(&v[0], n, floor, scale)
+		}
+	}
+	for i := n; i < len(v); i++ {
+		x := float64(v[i])
+		if !(x > floor) {
+			x = floor
+		}
+		v[i] = float32(scale * lnNormal(x))
+	}
+}
+
+// lnNormal returns ln x for a normal positive x, by the method of
+// logAVX2: x = m·2^e with m in [√½, √2), ln m = 2·atanh(s),
+// s = (m-1)/(m+1), to s⁹ (Abramowitz & Stegun 4.1.28; the first omitted
+// term is below 7e-10).
+func lnNormal(x float64) float64 {
+	b := math.Float64bits(x)
+	e := float64(int(b>>52) - 1023)
+	m := math.Float64frombits(b&(1<<52-1) | 0x3ff0000000000000)
+	if m >= math.Sqrt2 {
+		m *= 0.5
+		e++
+	}
+	s := (m - 1) / (m + 1)
+	s2 := s * s
+	return s*(2+s2*(2.0/3+s2*(2.0/5+s2*(2.0/7+s2*(2.0/9))))) + e*math.Ln2
 }

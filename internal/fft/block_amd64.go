@@ -22,11 +22,23 @@ func BlockSIMD() bool { return useAVX2 }
 //go:noescape
 func loadAVX2(re, im *float32, frames *[Lanes]*float32, win *float32, n int)
 
-// difAVX2 runs every decimation-in-frequency stage of an m-point
-// transform on (m, 8) re, im (block_amd64.s).
+// difAVX2 runs the radix-2 decimation-in-frequency stages of span h,
+// h/2, .., 1 of an m-point transform on (m, 8) re, im (block_amd64.s).
 //
 //go:noescape
-func difAVX2(re, im, twr, twi *float32, m int)
+func difAVX2(re, im, twr, twi *float32, m, h int)
+
+// dif4AVX2 runs the stages of span h and h/2 in one radix-4 pass, with
+// the twiddles w, w², w³ of each j < h/2 in tw (block_amd64.s).
+//
+//go:noescape
+func dif4AVX2(re, im, tw *float32, m, h int)
+
+// clipAVX2 raises each lane of (rows, 8) v to its maximum minus below
+// (block_amd64.s).
+//
+//go:noescape
+func clipAVX2(v *float32, rows int, below float64)
 
 // splitAVX2 writes bins 1..m-1 of the power (mag=0) or magnitude (mag=1)
 // spectrum (block_amd64.s).
@@ -38,3 +50,8 @@ func splitAVX2(dst, re, im *float32, rev *int32, spr, spi *float32, m, mag int)
 //
 //go:noescape
 func bandsAVX2(dst, spec *float32, span *int32, w *float32, rows int)
+
+// logAVX2 is [LogScaled] on n values, n a multiple of 4 (block_amd64.s).
+//
+//go:noescape
+func logAVX2(v *float32, n int, floor, scale float64)

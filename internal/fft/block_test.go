@@ -187,3 +187,61 @@ func BenchmarkBlockPower(b *testing.B) {
 		blk.Power(dst, &frames, false)
 	}
 }
+
+// TestLogScaledAgainstMathLog: each result is within one float32 rounding
+// of float32(scale·math.Log(max(v, floor))), on both paths, over
+// 1e-26..1e26 and at the edges (values at, below and around the floor,
+// zero, negative, NaN, √2 and its neighbours).
+func TestLogScaledAgainstMathLog(t *testing.T) {
+	blockPaths(t, func(t *testing.T) {
+		rng := rand.New(rand.NewPCG(17, 18))
+		v := []float32{0, -1, float32(math.NaN()), 1e-10, 1e-11, 1, float32(math.Sqrt2), math.Nextafter32(float32(math.Sqrt2), 0),
+			math.Nextafter32(float32(math.Sqrt2), 2), 0.5, 2, math.MaxFloat32, math.SmallestNonzeroFloat32}
+		for len(v) < 10003 { // not a multiple of 4: the tail runs too
+			v = append(v, float32(math.Exp(rng.Float64()*120-60)))
+		}
+		for _, c := range []struct{ floor, scale float64 }{{1e-10, 10 / math.Ln10}, {1e-30, 1}, {1e-6, 1}} {
+			got := append([]float32(nil), v...)
+			LogScaled(got, c.floor, c.scale)
+			for i, x := range v {
+				xf := float64(x)
+				if !(xf > c.floor) {
+					xf = c.floor
+				}
+				want := c.scale * math.Log(xf)
+				if d := math.Abs(float64(got[i]) - want); d > 1e-9*c.scale+math.Abs(want)*0x1p-24 {
+					t.Fatalf("floor %g scale %g: LogScaled(%g) = %g, math.Log gives %g", c.floor, c.scale, x, got[i], want)
+				}
+			}
+		}
+	})
+}
+
+// TestClipBelowPeak: per lane, values end at least the lane's maximum
+// minus the margin, larger values are untouched (direct check of the
+// definition on one row, three rows and 40).
+func TestClipBelowPeak(t *testing.T) {
+	blockPaths(t, func(t *testing.T) {
+		rng := rand.New(rand.NewPCG(19, 20))
+		for _, rows := range []int{1, 3, 40} {
+			v := make([]float32, rows*Lanes)
+			for i := range v {
+				v[i] = float32(rng.Float64()*200 - 150)
+			}
+			got := append([]float32(nil), v...)
+			ClipBelowPeak(got, 80)
+			for l := 0; l < Lanes; l++ {
+				peak := float32(math.Inf(-1))
+				for r := 0; r < rows; r++ {
+					peak = max(peak, v[r*Lanes+l])
+				}
+				lo := float32(float64(peak) - 80)
+				for r := 0; r < rows; r++ {
+					if want := max(v[r*Lanes+l], lo); got[r*Lanes+l] != want {
+						t.Fatalf("rows %d: [%d, %d] = %g, want %g (peak %g)", rows, r, l, got[r*Lanes+l], want, peak)
+					}
+				}
+			}
+		}
+	})
+}

@@ -110,10 +110,10 @@ func BenchmarkLoadClips(b *testing.B) {
 	}
 	b.Run("cold", func(b *testing.B) {
 		var spent time.Duration
-		for i := 0; b.Loop(); i++ {
+		for b.Loop() {
 			b.StopTimer()
 			o := opts
-			o.Cache = &Cache{Dir: filepath.Join(dir, fmt.Sprintf("cache-cold-%d", i))}
+			o.Cache = &Cache{Dir: tempDir(b, dir)}
 			b.StartTimer()
 			t0 := time.Now()
 			if _, err := Load(c, ids, o); err != nil {
@@ -125,7 +125,7 @@ func BenchmarkLoadClips(b *testing.B) {
 	})
 	b.Run("warm", func(b *testing.B) {
 		o := opts
-		o.Cache = &Cache{Dir: filepath.Join(dir, "cache-warm")}
+		o.Cache = &Cache{Dir: tempDir(b, dir)}
 		if _, err := Load(c, ids, o); err != nil {
 			b.Fatal(err)
 		}
@@ -140,4 +140,13 @@ func BenchmarkLoadClips(b *testing.B) {
 			b.Fatalf("warm runs missed the cache: %d misses, want only the first %d", o.Cache.Misses, len(ids))
 		}
 	})
+}
+
+// tempDir returns a new empty directory under dir.
+func tempDir(b *testing.B, dir string) string {
+	d, err := os.MkdirTemp(dir, "cache")
+	if err != nil {
+		b.Fatal(err)
+	}
+	return d
 }

@@ -37,7 +37,6 @@ type blockPath struct {
 	mel     []float32            // (Bands, Lanes) band sums
 	scratch [fft.Lanes][]float32 // (FFTSize) frames at the signal's edges, zero-padded
 	frames  [fft.Lanes][]float32 // the frames of one block
-	col     []float32            // (Bands) one frame's log-mel values
 }
 
 // NewExtractor validates cfg and builds an Extractor. Errors wrap

@@ -1,6 +1,9 @@
 package datasets
 
-import "testing"
+import (
+	"bytes"
+	"testing"
+)
 
 // FuzzParseManifest: the manifest parser never panics; accepted manifests
 // have classes, clips with labels in range, and consistent folds.
@@ -26,14 +29,29 @@ func FuzzParseManifest(f *testing.F) {
 	})
 }
 
-// FuzzDecodeCacheEntry: damaged cache entries are rejected, never panic.
-func FuzzDecodeCacheEntry(f *testing.F) {
-	f.Add([]byte("PIPITLM1\x01\x00\x00\x00\x01\x00\x00\x00\x00\x00\x80\x3f\x00\x00\x00\x00"))
-	f.Add([]byte("PIPITLM1\xff\xff\xff\xff\xff\xff\xff\xff"))
+// FuzzDecodeCachePack: damaged cache packs are rejected or yield only
+// whole, consistent entries; decodePack never panics. The seeds are a
+// valid two-entry pack, it truncated, and a header claiming a huge table.
+func FuzzDecodeCachePack(f *testing.F) {
+	var buf bytes.Buffer
+	if err := encodePack(&buf, []packEntry{
+		{key: cacheKey{1}, mat: []float32{1, 2, 3, 4, 5, 6}, bands: 2, frames: 3},
+		{key: cacheKey{2}, mat: []float32{-1}, bands: 1, frames: 1},
+	}); err != nil {
+		f.Fatal(err)
+	}
+	f.Add(buf.Bytes())
+	f.Add(buf.Bytes()[:buf.Len()-3])
+	f.Add([]byte("PIPITLP1\xff\xff\xff\xff\x00\x00\x00\x00"))
 	f.Fuzz(func(t *testing.T, data []byte) {
-		m, b, fr, err := decodeCacheEntry(data)
-		if err == nil && len(m) != b*fr {
-			t.Fatal("inconsistent entry accepted")
+		got := map[cacheKey]cachedClip{}
+		if err := decodePack(data, got); err != nil {
+			return
+		}
+		for k, e := range got {
+			if e.frames < 1 || len(e.mat) == 0 || len(e.mat)%e.frames != 0 {
+				t.Fatalf("entry %x: %d values for %d frames", k[:4], len(e.mat), e.frames)
+			}
 		}
 	})
 }

@@ -5,6 +5,9 @@ import (
 	"math"
 	"math/rand/v2"
 	"os"
+	"runtime"
+	"sync"
+	"sync/atomic"
 
 	"github.com/pipit-audio/pipit/features"
 )
@@ -59,7 +62,14 @@ type Set struct {
 
 // Load reads, resamples, pads and extracts the clips ids of c and cuts
 // them into windows. Each clip's log-mel matrix is taken from opts.Cache
-// when present there.
+// when present there; the matrices computed are added to it as one pack.
+//
+// Clips are loaded by GOMAXPROCS workers; the result (windows, clip
+// order, skipped clips, warnings, the error returned) is the same for any
+// worker count: clips are taken in ids order and collected by position,
+// and without SkipBad the error is that of the first bad clip in ids
+// order. Progress, Warn and the cache counters are called and updated
+// from the calling goroutine only.
 func Load(c *Corpus, ids []int, opts Options) (*Set, error) {
 	if err := opts.Window.Check(); err != nil {
 		return nil, err
@@ -69,28 +79,77 @@ func Load(c *Corpus, ids []int, opts Options) (*Set, error) {
 		return nil, err
 	}
 	s := &Set{Corpus: c, Opts: opts, data: map[int]*clipData{}, ex: ex, res: map[int]*features.Resampler{}}
-	for done, id := range ids {
-		cl := c.Clips[id]
-		d, err := s.loadClip(cl)
-		if err != nil {
+	fe := opts.FrontEnd
+	need := opts.Window.Samples(fe)
+	group := opts.Cache.openGroup(groupName(opts.Window.Pad, need, fe))
+
+	results := make([]loadResult, len(ids))
+	var next atomic.Int64
+	var stop atomic.Bool
+	done := make(chan struct{}, 64)
+	var wg sync.WaitGroup
+	for w := 0; w < min(runtime.GOMAXPROCS(0), len(ids)); w++ {
+		wl := &clipLoader{opts: &s.Opts, group: group, need: need, res: map[int]*features.Resampler{}}
+		if w == 0 {
+			wl.ex = ex
+		} else if wl.ex, err = features.NewExtractor(fe); err != nil {
+			return nil, err
+		}
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for !stop.Load() {
+				i := int(next.Add(1) - 1)
+				if i >= len(ids) {
+					return
+				}
+				results[i] = wl.load(c.Clips[ids[i]])
+				if results[i].err != nil && !opts.SkipBad {
+					stop.Store(true)
+				}
+				done <- struct{}{}
+			}
+		}()
+	}
+	go func() { wg.Wait(); close(done) }()
+	finished := 0
+	for range done {
+		finished++
+		if opts.Progress != nil {
+			opts.Progress(finished, len(ids))
+		}
+	}
+
+	var fresh []packEntry
+	hopSec := float64(fe.HopSamples) / float64(fe.SampleRateHz)
+	for i, id := range ids {
+		r := results[i]
+		if r.err != nil {
 			if !opts.SkipBad {
-				return nil, err
+				return nil, r.err
 			}
 			if opts.Warn != nil {
-				opts.Warn(err)
+				opts.Warn(r.err)
 			}
 			s.Skipped = append(s.Skipped, id)
 			continue
 		}
-		s.data[id] = d
+		if group != nil {
+			if r.hit {
+				opts.Cache.Hits++
+			} else {
+				opts.Cache.Misses++
+				fresh = append(fresh, packEntry{key: r.key, mat: r.d.mat, bands: fe.Bands, frames: r.d.frames})
+			}
+		}
+		s.data[id] = r.d
 		s.Clips = append(s.Clips, id)
-		hopSec := float64(opts.FrontEnd.HopSamples) / float64(opts.FrontEnd.SampleRateHz)
-		for _, st := range opts.Window.Starts(d.frames) {
-			s.Windows = append(s.Windows, Window{Clip: id, Label: cl.Label, StartFrame: st, StartSec: float64(st) * hopSec})
+		for _, st := range opts.Window.Starts(r.d.frames) {
+			s.Windows = append(s.Windows, Window{Clip: id, Label: c.Clips[id].Label, StartFrame: st, StartSec: float64(st) * hopSec})
 		}
-		if opts.Progress != nil {
-			opts.Progress(done+1, len(ids))
-		}
+	}
+	if err := group.add(fresh); err != nil {
+		return nil, err
 	}
 	if len(s.Windows) == 0 {
 		return nil, corpusErr("no readable clips among %d", len(ids))
@@ -98,32 +157,53 @@ func Load(c *Corpus, ids []int, opts Options) (*Set, error) {
 	return s, nil
 }
 
-func (s *Set) loadClip(cl Clip) (*clipData, error) {
-	fe := s.Opts.FrontEnd
+// loadResult is what a worker made of one clip.
+type loadResult struct {
+	d   *clipData
+	key cacheKey
+	hit bool // d.mat came from the cache
+	err error
+}
+
+// clipLoader is one worker's state: its own extractor and resamplers.
+type clipLoader struct {
+	opts  *Options
+	group *cacheGroup // read only while workers run
+	need  int
+	ex    *features.Extractor
+	res   map[int]*features.Resampler
+}
+
+func (l *clipLoader) load(cl Clip) loadResult {
+	fe := l.opts.FrontEnd
 	raw, err := os.ReadFile(cl.Path)
 	if err != nil {
-		return nil, fmt.Errorf("datasets: %w", err)
+		return loadResult{err: fmt.Errorf("datasets: %w", err)}
 	}
-	need := s.Opts.Window.Samples(fe)
-	key := cacheKey(raw, cl, s.Opts.Window.Pad, need, fe)
-	mat, _, frames, hit := s.Opts.Cache.get(key)
-	if hit && !s.Opts.KeepAudio {
-		return &clipData{mat: mat, frames: frames}, nil
+	var r loadResult
+	var cached cachedClip
+	if l.group != nil {
+		r.key = fileKey(raw, cl)
+		cached, r.hit = l.group.entries[r.key]
+	}
+	if r.hit && !l.opts.KeepAudio {
+		r.d = &clipData{mat: cached.mat, frames: cached.frames}
+		return r
 	}
 	a, err := features.DecodeWAV(cl.Path, raw)
 	if err != nil {
-		return nil, err
+		return loadResult{err: err}
 	}
 	x := a.Samples
 	if a.SampleRateHz != fe.SampleRateHz {
-		r, ok := s.res[a.SampleRateHz]
+		rs, ok := l.res[a.SampleRateHz]
 		if !ok {
-			if r, err = features.NewResampler(a.SampleRateHz, fe.SampleRateHz); err != nil {
-				return nil, fmt.Errorf("datasets: %s: %w", cl.Path, err)
+			if rs, err = features.NewResampler(a.SampleRateHz, fe.SampleRateHz); err != nil {
+				return loadResult{err: fmt.Errorf("datasets: %s: %w", cl.Path, err)}
 			}
-			s.res[a.SampleRateHz] = r
+			l.res[a.SampleRateHz] = rs
 		}
-		x = r.Resample(nil, x)
+		x = rs.Resample(nil, x)
 	}
 	lo := int(math.Round(cl.Start * float64(fe.SampleRateHz)))
 	hi := len(x)
@@ -131,26 +211,23 @@ func (s *Set) loadClip(cl Clip) (*clipData, error) {
 		hi = min(hi, int(math.Round(cl.End*float64(fe.SampleRateHz))))
 	}
 	if lo >= hi {
-		return nil, corpusErr("%s: span %g..%g s is outside the %.3f s recording", cl.Path, cl.Start, cl.End, a.Seconds())
+		return loadResult{err: corpusErr("%s: span %g..%g s is outside the %.3f s recording", cl.Path, cl.Start, cl.End, a.Seconds())}
 	}
-	x = padClip(x[lo:hi], need, s.Opts.Window.Pad)
-	d := &clipData{}
-	if s.Opts.KeepAudio {
-		d.audio = x
+	x = padClip(x[lo:hi], l.need, l.opts.Window.Pad)
+	r.d = &clipData{}
+	if l.opts.KeepAudio {
+		r.d.audio = x
 	}
-	if hit {
-		d.mat, d.frames = mat, frames
-		return d, nil
+	if r.hit {
+		r.d.mat, r.d.frames = cached.mat, cached.frames
+		return r
 	}
-	m, err := s.ex.Compute(x)
+	m, err := l.ex.Compute(x)
 	if err != nil {
-		return nil, fmt.Errorf("datasets: %s: %w", cl.Path, err)
+		return loadResult{err: fmt.Errorf("datasets: %s: %w", cl.Path, err)}
 	}
-	d.mat, d.frames = m.Data().([]float32), m.Shape()[1]
-	if err := s.Opts.Cache.put(key, d.mat, fe.Bands, d.frames); err != nil {
-		return nil, err
-	}
-	return d, nil
+	r.d.mat, r.d.frames = m.Data().([]float32), m.Shape()[1]
+	return r
 }
 
 // Len returns the number of windows.

@@ -79,15 +79,41 @@ func TestLoadWindowsCacheAndFolders(t *testing.T) {
 			t.Fatal("cached features differ from extracted ones")
 		}
 	}
-	// A damaged cache entry is a miss and gets rewritten, never read.
-	entries, _ := filepath.Glob(filepath.Join(cache.Dir, "*", "*.lmel"))
-	os.WriteFile(entries[0], []byte("PIPITLM1garbage"), 0o644)
+	// A damaged entry is a miss, recomputed into a new pack, never read.
+	packs, _ := filepath.Glob(filepath.Join(cache.Dir, "*", "*.lmpack"))
+	if len(packs) != 1 {
+		t.Fatalf("%d packs after two loads, want 1 (the second load computed nothing)", len(packs))
+	}
+	data, err := os.ReadFile(packs[0])
+	if err != nil {
+		t.Fatal(err)
+	}
+	data[len(data)-1] ^= 0x40 // last value of the last entry
+	if err := os.WriteFile(packs[0], data, 0o644); err != nil {
+		t.Fatal(err)
+	}
 	hits := cache.Hits
 	if _, err := Load(m, allIDs(m), opts); err != nil {
 		t.Fatal(err)
 	}
 	if cache.Hits != hits+15 {
 		t.Errorf("after damaging one entry: %d new hits, want 15", cache.Hits-hits)
+	}
+	hits = cache.Hits
+	if _, err := Load(m, allIDs(m), opts); err != nil {
+		t.Fatal(err)
+	}
+	if cache.Hits != hits+16 {
+		t.Errorf("after recomputing it: %d new hits, want 16", cache.Hits-hits)
+	}
+	// A truncated pack (damaged table) is skipped whole.
+	os.WriteFile(packs[0], data[:100], 0o644)
+	hits, misses := cache.Hits, cache.Misses
+	if _, err := Load(m, allIDs(m), opts); err != nil {
+		t.Fatal(err)
+	}
+	if cache.Hits != hits+1 || cache.Misses != misses+15 {
+		t.Errorf("after truncating the first pack: %d hits %d misses, want 1 and 15", cache.Hits-hits, cache.Misses-misses)
 	}
 	// Statistics normalise the training windows to mean 0, std 1 per band.
 	st, err := s.ComputeStats()

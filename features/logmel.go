@@ -25,6 +25,18 @@ type Extractor struct {
 	spec    []float64    // (FFTSize/2+1) power or magnitude
 	offset  int          // (FFTSize-Window)/2
 	res     map[int]*Resampler
+	blk     *blockPath // Lanes frames at a time (AVX2); nil: one frame at a time
+}
+
+// blockPath holds what [Extractor.Compute] needs to run fft.Lanes frames
+// at a time through [fft.Block] and [fft.Bands] in float32.
+type blockPath struct {
+	fft     *fft.Block
+	bands   *fft.Bands
+	pow     []float32            // (FFTSize/2+1, Lanes) spectra
+	mel     []float32            // (Bands, Lanes) band sums
+	scratch [fft.Lanes][]float32 // (FFTSize) frames at the signal's edges, zero-padded
+	frames  [fft.Lanes][]float32 // the frames of one block
 }
 
 // NewExtractor validates cfg and builds an Extractor. Errors wrap
@@ -39,7 +51,7 @@ func NewExtractor(cfg Config) (*Extractor, error) {
 	}
 	nb := cfg.FFTSize/2 + 1
 	fast, _ := fft.NewReal(cfg.FFTSize) // nil unless a power of two
-	return &Extractor{
+	e := &Extractor{
 		fast:    fast,
 		cfg:     cfg,
 		window:  w,
@@ -50,7 +62,34 @@ func NewExtractor(cfg Config) (*Extractor, error) {
 		spec:    make([]float64, nb),
 		offset:  (cfg.FFTSize - cfg.WindowSamples) / 2,
 		res:     map[int]*Resampler{},
-	}, nil
+	}
+	if fft.BlockSIMD() {
+		e.blk = newBlockPath(e)
+	}
+	return e, nil
+}
+
+// newBlockPath returns the block path for e's settings, or nil when the
+// FFT size is not a power of two of at least 16.
+func newBlockPath(e *Extractor) *blockPath {
+	n := e.cfg.FFTSize
+	padded := make([]float64, n) // the window at its offset, zeros around it
+	copy(padded[e.offset:], e.window)
+	blk, err := fft.NewBlock(n, padded)
+	if err != nil {
+		return nil
+	}
+	starts := make([]int, len(e.filters))
+	weights := make([][]float64, len(e.filters))
+	for m, f := range e.filters {
+		starts[m], weights[m] = f.Start, f.Weights
+	}
+	b := &blockPath{fft: blk, bands: fft.NewBands(starts, weights),
+		pow: make([]float32, (n/2+1)*fft.Lanes), mel: make([]float32, e.cfg.Bands*fft.Lanes)}
+	for l := range b.scratch {
+		b.scratch[l] = make([]float32, n)
+	}
+	return b
 }
 
 // Config returns the extractor's configuration.
@@ -139,12 +178,16 @@ func (e *Extractor) Compute(samples []float32) (*tensor.Dense, error) {
 		return nil, fmt.Errorf("features: signal of %d samples is shorter than one %d-sample window", len(samples), e.cfg.WindowSamples)
 	}
 	out := make([]float32, e.cfg.Bands*nf)
-	frame := make([]float32, e.cfg.WindowSamples)
-	col := make([]float32, e.cfg.Bands)
 	pad := 0
 	if e.cfg.PadEnds {
 		pad = e.cfg.WindowSamples / 2
 	}
+	if e.blk != nil {
+		e.computeBlocks(out, samples, nf, pad)
+		return tensor.New(tensor.WithShape(e.cfg.Bands, nf), tensor.WithBacking(out)), nil
+	}
+	frame := make([]float32, e.cfg.WindowSamples)
+	col := make([]float32, e.cfg.Bands)
 	for t := 0; t < nf; t++ {
 		start := t*e.cfg.HopSamples - pad
 		if start >= 0 && start+len(frame) <= len(samples) {
@@ -165,6 +208,50 @@ func (e *Extractor) Compute(samples []float32) (*tensor.Dense, error) {
 		}
 	}
 	return tensor.New(tensor.WithShape(e.cfg.Bands, nf), tensor.WithBacking(out)), nil
+}
+
+// computeBlocks is [Extractor.Compute] fft.Lanes frames at a time: the
+// same frames, window, spectrum, bands and compression, with the
+// spectrum and band sums in float32 (TestBlockPathMatchesFramePath). out
+// is (Bands, nf).
+func (e *Extractor) computeBlocks(out, samples []float32, nf, pad int) {
+	b := e.blk
+	n := e.cfg.FFTSize
+	magnitude := e.cfg.Spectrum == SpectrumMagnitude
+	scale := 1.0
+	if e.cfg.Log == LogDecibel {
+		scale = 10 / math.Ln10
+	}
+	clip := e.cfg.Log == LogDecibel && e.cfg.FloorBelowPeakDB > 0
+	for t0 := 0; t0 < nf; t0 += fft.Lanes {
+		for l := range b.frames {
+			// The FFT buffer of frame t starts offset samples before it.
+			start := (t0+l)*e.cfg.HopSamples - pad - e.offset
+			if t0+l < nf && e.offset == 0 && start >= 0 && start+n <= len(samples) {
+				b.frames[l] = samples[start : start+n]
+				continue
+			}
+			s := b.scratch[l]
+			clear(s)
+			if t0+l < nf { // the window's span, clipped to the signal
+				lo, hi := max(start+e.offset, 0), min(start+e.offset+e.cfg.WindowSamples, len(samples))
+				if lo < hi {
+					copy(s[lo-start:], samples[lo:hi])
+				}
+			}
+			b.frames[l] = s
+		}
+		b.fft.Power(b.pow, &b.frames, magnitude)
+		b.bands.Apply(b.mel, b.pow)
+		fft.LogScaled(b.mel, e.cfg.LogFloor, scale)
+		if clip {
+			fft.ClipBelowPeak(b.mel, e.cfg.FloorBelowPeakDB)
+		}
+		lanes := min(fft.Lanes, nf-t0)
+		for m := 0; m < e.cfg.Bands; m++ {
+			copy(out[m*nf+t0:m*nf+t0+lanes], b.mel[m*fft.Lanes:])
+		}
+	}
 }
 
 // ComputeAudio resamples a to the configured rate when needed (see

@@ -11,6 +11,8 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+
+	"github.com/pipit-audio/pipit/internal/fft"
 )
 
 func TestSpectrumAnalyticFrame(t *testing.T) {
@@ -309,5 +311,80 @@ func BenchmarkLogMel(b *testing.B) {
 		if _, err := e.Compute(x); err != nil {
 			b.Fatal(err)
 		}
+	}
+}
+
+// TestBlockPathMatchesFramePath: Compute on the float32 block path (AVX2,
+// fft.Lanes frames at a time) against the float64 one-frame path, over
+// settings that exercise the edges (centring, an FFT larger than the
+// window, hop larger than the window, fewer frames than lanes, magnitude
+// and ln), within the golden test's 1e-3 dB.
+func TestBlockPathMatchesFramePath(t *testing.T) {
+	if !fft.BlockSIMD() {
+		t.Skip("no AVX2/FMA on this CPU (or PIPIT_NOASM=1): the block path is not used")
+	}
+	rng := rand.New(rand.NewPCG(23, 24))
+	x := make([]float32, 16000+77)
+	for i := range x {
+		x[i] = float32(0.3*math.Sin(float64(i)*0.031) + 0.05*rng.NormFloat64())
+	}
+	variants := map[string]func(*Config){
+		"default": func(*Config) {},
+		"center":  func(c *Config) { c.PadEnds = true },
+		"fft > window": func(c *Config) {
+			c.WindowSamples, c.HopSamples, c.Window, c.SymmetricWindow = 400, 160, WindowHamming, true
+		},
+		"hop > window":  func(c *Config) { c.WindowSamples, c.FFTSize, c.HopSamples = 256, 256, 300 },
+		"magnitude, ln": func(c *Config) { c.Spectrum, c.Log, c.LogFloor = SpectrumMagnitude, LogNatural, 1e-6 },
+		"slaney, area, 1024": func(c *Config) {
+			c.MelScale, c.MelNorm, c.FFTSize, c.WindowSamples, c.Bands = MelSlaney, MelNormArea, 1024, 1024, 64
+		},
+		"no clip, short fft": func(c *Config) {
+			c.FloorBelowPeakDB, c.FFTSize, c.WindowSamples, c.HopSamples, c.Bands = 0, 64, 64, 32, 8
+		},
+		"three frames":        func(c *Config) { c.PadEnds = true },
+		"silence below floor": func(c *Config) {},
+	}
+	for name, mod := range variants {
+		t.Run(name, func(t *testing.T) {
+			cfg := DefaultConfig()
+			mod(&cfg)
+			sig := x
+			switch name {
+			case "three frames":
+				sig = x[:700]
+			case "silence below floor":
+				sig = make([]float32, 4000)
+			}
+			e, err := NewExtractor(cfg)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if e.blk == nil {
+				t.Fatal("block path not built")
+			}
+			got, err := e.Compute(sig)
+			if err != nil {
+				t.Fatal(err)
+			}
+			e.blk = nil
+			want, err := e.Compute(sig)
+			if err != nil {
+				t.Fatal(err)
+			}
+			unit := 1.0
+			if cfg.Log == LogNatural {
+				unit = 10 / math.Ln10
+			}
+			g, w := got.Data().([]float32), want.Data().([]float32)
+			worst := 0.0
+			for i := range w {
+				worst = math.Max(worst, unit*math.Abs(float64(g[i]-w[i])))
+			}
+			if worst > 1e-3 {
+				t.Errorf("block path differs from the frame path by %.2g dB, want ≤ 1e-3", worst)
+			}
+			t.Logf("%d frames, max difference %.2g dB", got.Shape()[1], worst)
+		})
 	}
 }

@@ -4,11 +4,8 @@ import (
 	"bytes"
 	"encoding/binary"
 	"fmt"
-	"io"
 	"math"
 	"os"
-
-	"github.com/go-audio/wav"
 )
 
 // Limits applied to WAV input before anything is allocated.
@@ -97,10 +94,10 @@ type wavLayout struct {
 // Chunks may come in any order; unknown chunks (LIST, bext, fact, ...) are
 // skipped, odd-sized chunks are followed by their RIFF pad byte, and an
 // incomplete final sample frame is dropped. The chunk structure is
-// validated here against the bytes present; the sample words are unpacked
-// by github.com/go-audio/wav from a canonical copy of the fmt and data
-// chunks, because go-audio itself neither follows extensible or
-// out-of-order layouts nor bounds its allocations by the input length.
+// validated here against the bytes present and the sample words are
+// unpacked straight from them (tested against github.com/go-audio/wav,
+// which itself neither follows extensible or out-of-order layouts nor
+// bounds its allocations by the input length).
 //
 // Every malformed input gives a *[WAVError] naming the file; DecodeWAV never
 // panics and its work is bounded by len(data).
@@ -112,14 +109,7 @@ func DecodeWAV(name string, data []byte) (*Audio, error) {
 	if err != nil {
 		return nil, err
 	}
-	ints, err := unpackWithGoAudio(lay)
-	if err != nil {
-		return nil, &WAVError{Name: name, Offset: lay.dataOffset, Reason: "decoding samples: " + err.Error(), Err: err}
-	}
 	frames := len(lay.data) / lay.blockAlign
-	if len(ints) != frames*lay.channels {
-		return nil, &WAVError{Name: name, Offset: lay.dataOffset, Reason: fmt.Sprintf("decoder returned %d samples, want %d", len(ints), frames*lay.channels)}
-	}
 	out := &Audio{
 		SampleRateHz: lay.rateHz,
 		Channels:     lay.channels,
@@ -127,40 +117,55 @@ func DecodeWAV(name string, data []byte) (*Audio, error) {
 		Float:        lay.format == wavFormatFloat,
 		Samples:      make([]float32, frames),
 	}
-	c := lay.channels
-	inv := 1 / float64(c)
-	for f := 0; f < frames; f++ {
-		var sum float64
-		for ch := 0; ch < c; ch++ {
-			v, ok := sampleToFloat(ints[f*c+ch], lay)
-			if !ok {
-				return nil, &WAVError{Name: name, Offset: lay.dataOffset + int64((f*c+ch)*lay.bits/8), Reason: "non-finite float sample"}
-			}
-			sum += v
-		}
-		out.Samples[f] = float32(sum * inv)
+	if at := unpackSamples(out.Samples, lay); at >= 0 {
+		return nil, &WAVError{Name: name, Offset: lay.dataOffset + int64(at), Reason: "non-finite float sample"}
 	}
 	return out, nil
 }
 
-func sampleToFloat(v int, lay *wavLayout) (float64, bool) {
-	if lay.format == wavFormatFloat {
-		f := float64(math.Float32frombits(uint32(int32(v))))
-		if math.IsNaN(f) || math.IsInf(f, 0) {
-			return 0, false
+// unpackSamples decodes the sample words of lay.data straight from the
+// bytes into dst (one value per frame) and mixes the channels by their
+// mean, each sample scaled as documented in [DecodeWAV]. It returns the
+// byte offset in lay.data of the first non-finite float sample, or -1.
+// The result equals github.com/go-audio/wav's decoding of the same words
+// (TestDecodeMatchesGoAudio).
+func unpackSamples(dst []float32, lay *wavLayout) int {
+	d, c := lay.data, lay.channels
+	le := binary.LittleEndian
+	if c == 1 && lay.format == wavFormatPCM && lay.bits == 16 { // the common case
+		d = d[:2*len(dst)]
+		for i := range dst {
+			dst[i] = float32(int16(le.Uint16(d[2*i:]))) * (1.0 / (1 << 15)) // exact
 		}
-		return f, true
+		return -1
 	}
-	switch lay.bits {
-	case 8:
-		return float64(v-128) / 128, true
-	case 16:
-		return float64(v) / (1 << 15), true
-	case 24:
-		return float64(v) / (1 << 23), true
-	default: // 32
-		return float64(v) / (1 << 31), true
+	bytesPer := lay.bits / 8
+	inv := 1 / float64(c)
+	for f := range dst {
+		var sum float64
+		for ch := 0; ch < c; ch++ {
+			at := (f*c + ch) * bytesPer
+			var v float64
+			switch {
+			case lay.format == wavFormatFloat:
+				v = float64(math.Float32frombits(le.Uint32(d[at:])))
+				if math.IsNaN(v) || math.IsInf(v, 0) {
+					return at
+				}
+			case bytesPer == 1:
+				v = float64(int(d[at])-128) / 128
+			case bytesPer == 2:
+				v = float64(int16(le.Uint16(d[at:]))) / (1 << 15)
+			case bytesPer == 3:
+				v = float64(int32(uint32(d[at])<<8|uint32(d[at+1])<<16|uint32(d[at+2])<<24)>>8) / (1 << 23)
+			default: // 4
+				v = float64(int32(le.Uint32(d[at:]))) / (1 << 31)
+			}
+			sum += v
+		}
+		dst[f] = float32(sum * inv)
 	}
+	return -1
 }
 
 // parseWAVLayout walks the RIFF chunks of data. Each step advances by at
@@ -292,35 +297,4 @@ func parseFmt(name string, lay *wavLayout, b []byte, off int64) error {
 		return bad(off+12, "block align %d does not match %d channels of %d bits (%d)", lay.blockAlign, lay.channels, lay.bits, want)
 	}
 	return nil
-}
-
-// unpackWithGoAudio rebuilds a canonical 44-byte-header WAV from lay and
-// lets go-audio unpack the sample words. 32-bit float words come back as
-// their int32 bit patterns.
-func unpackWithGoAudio(lay *wavLayout) ([]int, error) {
-	var hdr [44]byte
-	le := binary.LittleEndian
-	copy(hdr[0:4], "RIFF")
-	le.PutUint32(hdr[4:8], uint32(36+len(lay.data)))
-	copy(hdr[8:16], "WAVEfmt ")
-	le.PutUint32(hdr[16:20], 16)
-	le.PutUint16(hdr[20:22], uint16(lay.format))
-	le.PutUint16(hdr[22:24], uint16(lay.channels))
-	le.PutUint32(hdr[24:28], uint32(lay.rateHz))
-	le.PutUint32(hdr[28:32], uint32(lay.rateHz*lay.blockAlign))
-	le.PutUint16(hdr[32:34], uint16(lay.blockAlign))
-	le.PutUint16(hdr[34:36], uint16(lay.bits))
-	copy(hdr[36:40], "data")
-	le.PutUint32(hdr[40:44], uint32(len(lay.data)))
-	r := io.MultiReader(bytes.NewReader(hdr[:]), bytes.NewReader(lay.data))
-	canon, err := io.ReadAll(r)
-	if err != nil {
-		return nil, err
-	}
-	d := wav.NewDecoder(bytes.NewReader(canon))
-	buf, err := d.FullPCMBuffer()
-	if err != nil {
-		return nil, err
-	}
-	return buf.Data, nil
 }

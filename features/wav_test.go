@@ -1,13 +1,17 @@
 package features
 
 import (
+	"bytes"
 	"encoding/binary"
 	"errors"
 	"math"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/go-audio/wav"
 )
 
 // Fixtures: SoX 14.4.2 (Debian) via testdata/gen/make_wavs.sh. Every file is
@@ -229,6 +233,80 @@ func TestWriteWAVFileRoundTrip(t *testing.T) {
 	for i, want := range []float32{0, 0.5, -0.5, 1, -1, 1} {
 		if math.Abs(float64(a.Samples[i]-want)) > 1.0/16384 {
 			t.Errorf("sample %d = %g, want %g", i, a.Samples[i], want)
+		}
+	}
+}
+
+// TestDecodeMatchesGoAudio: for random sample words of every supported
+// encoding and 1 to 3 channels, DecodeWAV gives the mean of the channel
+// values that github.com/go-audio/wav (v1.1.0) unpacks from the same
+// canonical file, scaled as DecodeWAV documents (8-bit: (v-128)/128,
+// otherwise v/2^(bits-1); float words as their float32 value).
+func TestDecodeMatchesGoAudio(t *testing.T) {
+	rng := rand.New(rand.NewPCG(21, 22))
+	for _, enc := range []struct {
+		bits  int
+		float bool
+	}{{8, false}, {16, false}, {24, false}, {32, false}, {32, true}} {
+		for channels := 1; channels <= 3; channels++ {
+			frames := 257
+			data := make([]byte, frames*channels*enc.bits/8)
+			for i := range data {
+				data[i] = byte(rng.Uint32())
+			}
+			if enc.float { // finite float words only
+				for i := 0; i < len(data); i += 4 {
+					binary.LittleEndian.PutUint32(data[i:], math.Float32bits(float32(rng.NormFloat64())))
+				}
+			}
+			tag := uint16(1)
+			if enc.float {
+				tag = 3
+			}
+			var hdr [44]byte
+			le := binary.LittleEndian
+			copy(hdr[0:], "RIFF")
+			le.PutUint32(hdr[4:], uint32(36+len(data)))
+			copy(hdr[8:], "WAVEfmt ")
+			le.PutUint32(hdr[16:], 16)
+			le.PutUint16(hdr[20:], tag)
+			le.PutUint16(hdr[22:], uint16(channels))
+			le.PutUint32(hdr[24:], 16000)
+			le.PutUint32(hdr[28:], uint32(16000*channels*enc.bits/8))
+			le.PutUint16(hdr[32:], uint16(channels*enc.bits/8))
+			le.PutUint16(hdr[34:], uint16(enc.bits))
+			copy(hdr[36:], "data")
+			le.PutUint32(hdr[40:], uint32(len(data)))
+			file := append(hdr[:], data...)
+
+			a, err := DecodeWAV("random.wav", file)
+			if err != nil {
+				t.Fatal(err)
+			}
+			buf, err := wav.NewDecoder(bytes.NewReader(file)).FullPCMBuffer()
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(buf.Data) != frames*channels || len(a.Samples) != frames {
+				t.Fatalf("%d-bit ×%d: go-audio %d words, DecodeWAV %d frames", enc.bits, channels, len(buf.Data), len(a.Samples))
+			}
+			for f := 0; f < frames; f++ {
+				var sum float64
+				for c := 0; c < channels; c++ {
+					v := buf.Data[f*channels+c]
+					switch {
+					case enc.float:
+						sum += float64(math.Float32frombits(uint32(int32(v))))
+					case enc.bits == 8:
+						sum += float64(v-128) / 128
+					default:
+						sum += float64(v) / math.Ldexp(1, enc.bits-1)
+					}
+				}
+				if want := float32(sum / float64(channels)); a.Samples[f] != want {
+					t.Fatalf("%d-bit float=%v ×%d frame %d: %g, go-audio gives %g", enc.bits, enc.float, channels, f, a.Samples[f], want)
+				}
+			}
 		}
 	}
 }

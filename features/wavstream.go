@@ -185,39 +185,13 @@ func (w *WAVReader) Read(dst []float32) (int, error) {
 	if _, err := io.ReadFull(w.r, raw); err != nil {
 		return 0, &WAVError{Name: w.name, Offset: w.lay.dataOffset + w.done*int64(ba), Reason: "reading samples: " + err.Error(), Err: err}
 	}
-	c := w.lay.channels
-	bytesPer := w.lay.bits / 8
-	inv := 1 / float64(c)
-	for f := 0; f < n; f++ {
-		var sum float64
-		for ch := 0; ch < c; ch++ {
-			off := f*ba + ch*bytesPer
-			v, ok := sampleToFloat(rawSample(raw[off:off+bytesPer], w.lay.bits), &w.lay)
-			if !ok {
-				return 0, &WAVError{Name: w.name, Offset: w.lay.dataOffset + (w.done+int64(f))*int64(ba) + int64(ch*bytesPer), Reason: "non-finite float sample"}
-			}
-			sum += v
-		}
-		dst[f] = float32(sum * inv)
+	blk := w.lay
+	blk.data = raw
+	if at := unpackSamples(dst[:n], &blk); at >= 0 {
+		return 0, &WAVError{Name: w.name, Offset: w.lay.dataOffset + w.done*int64(ba) + int64(at), Reason: "non-finite float sample"}
 	}
 	w.done += int64(n)
 	return n, nil
-}
-
-// rawSample unpacks one little-endian sample word as go-audio does: 8-bit
-// unsigned as is, 16/24/32-bit signed (32-bit float words as their int32
-// bit pattern).
-func rawSample(b []byte, bits int) int {
-	switch bits {
-	case 8:
-		return int(b[0])
-	case 16:
-		return int(int16(binary.LittleEndian.Uint16(b)))
-	case 24:
-		return int(int32(uint32(b[0])|uint32(b[1])<<8|uint32(b[2])<<16) << 8 >> 8)
-	default:
-		return int(int32(binary.LittleEndian.Uint32(b)))
-	}
 }
 
 // Close closes the file opened by [OpenWAV]; for readers made by

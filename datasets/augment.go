@@ -11,7 +11,7 @@ import (
 type Augment struct {
 	ShiftSeconds float64 `json:"shift_seconds"` // shift the window by up to ± this, zero-filled at the clip's ends
 	GainDB       float64 `json:"gain_db"`       // scale by up to ± this
-	NoiseProb    float64 `json:"noise_prob"`    // probability of mixing in pink noise
+	NoiseProb    float64 `json:"noise_prob"`    // probability of mixing in pink noise (a random stretch of 2^18 samples drawn once per set)
 	MinSNRdB     float64 `json:"min_snr_db"`    // SNR range of the window over that noise
 	MaxSNRdB     float64 `json:"max_snr_db"`
 	// Time and frequency masks on the normalised log-mel (SpecAugment,
@@ -28,8 +28,42 @@ func DefaultAugment() *Augment {
 		TimeMasks: 1, TimeMaskFrames: 6, FreqMasks: 1, FreqMaskBands: 4}
 }
 
-// audio writes an augmented copy of clip[start : start+len(dst)] into dst.
-func (a *Augment) audio(dst, clip []float32, start, rateHz int, rng *rand.Rand) {
+// noiseBank is a long stretch of pink noise drawn once, from which the
+// noise of each augmented window is a random segment: drawing 2 normal
+// variates per sample for every window would cost more than the training
+// step itself. cum[i] is Σ_{j<i} x[j]², so a segment's power costs two
+// lookups.
+type noiseBank struct {
+	x   []float64
+	cum []float64
+}
+
+// noiseBankSamples is the bank's length: 2^18 samples, 16.4 s at 16 kHz.
+const noiseBankSamples = 1 << 18
+
+func newNoiseBank(seed uint64) *noiseBank {
+	x := pinkNoise(noiseBankSamples, rand.New(rand.NewPCG(seed, 0x9015eba4c)))
+	cum := make([]float64, len(x)+1)
+	for i, v := range x {
+		cum[i+1] = cum[i] + v*v
+	}
+	return &noiseBank{x: x, cum: cum}
+}
+
+// segment returns a random n-sample stretch of the bank and its mean
+// power (a fresh draw when n exceeds the bank).
+func (b *noiseBank) segment(n int, rng *rand.Rand) ([]float64, float64) {
+	if b == nil || n > len(b.x) {
+		x := pinkNoise(n, rng)
+		return x, power(x)
+	}
+	o := rng.IntN(len(b.x) - n + 1)
+	return b.x[o : o+n], (b.cum[o+n] - b.cum[o]) / float64(n)
+}
+
+// audio writes an augmented copy of clip[start : start+len(dst)] into dst,
+// taking noise from bank.
+func (a *Augment) audio(dst, clip []float32, start, rateHz int, rng *rand.Rand, bank *noiseBank) {
 	shift := 0
 	if a.ShiftSeconds > 0 {
 		m := int(a.ShiftSeconds * float64(rateHz))
@@ -54,9 +88,9 @@ func (a *Augment) audio(dst, clip []float32, start, rateHz int, rng *rand.Rand) 
 		p += float64(v) * float64(v)
 	}
 	if a.NoiseProb > 0 && rng.Float64() < a.NoiseProb && p > 0 {
-		noise := pinkNoise(len(dst), rng)
+		noise, pn := bank.segment(len(dst), rng)
 		snr := a.MinSNRdB + rng.Float64()*(a.MaxSNRdB-a.MinSNRdB)
-		k := math.Sqrt(p / float64(len(dst)) / power(noise) / math.Pow(10, snr/10))
+		k := math.Sqrt(p / float64(len(dst)) / pn / math.Pow(10, snr/10))
 		for i := range dst {
 			dst[i] += float32(k * noise[i])
 		}

@@ -57,7 +57,11 @@ type Set struct {
 	data    map[int]*clipData
 	ex      *features.Extractor
 	res     map[int]*features.Resampler
-	seg     []float32
+	seg     []float32 // Sample's scratch: augmented audio, its log-mel, its RNG
+	mel     []float32
+	pcg     *rand.PCG
+	rng     *rand.Rand
+	bank    *noiseBank
 }
 
 // Load reads, resamples, pads and extracts the clips ids of c and cuts
@@ -240,7 +244,9 @@ func (s *Set) InputSize() int { return s.Opts.FrontEnd.Bands * s.Opts.Window.Fra
 // and returns its label. With Aug set, the window is re-extracted from
 // augmented audio with an RNG seeded by (Seed, epoch, i), so every epoch
 // sees a different but reproducible variant; then Stats normalise it and
-// Aug's masks apply. It panics if len(dst) != InputSize().
+// Aug's masks apply. It allocates nothing after its first call; calls
+// must not overlap (the training loop makes them from one goroutine). It
+// panics if len(dst) != InputSize().
 func (s *Set) Sample(i, epoch int, dst []float32) int {
 	w := s.Windows[i]
 	fe, F, M := s.Opts.FrontEnd, s.Opts.Window.Frames, s.Opts.FrontEnd.Bands
@@ -250,18 +256,27 @@ func (s *Set) Sample(i, epoch int, dst []float32) int {
 	d := s.data[w.Clip]
 	var rng *rand.Rand
 	if s.Aug != nil && d.audio != nil {
-		rng = rand.New(rand.NewPCG(s.Seed^uint64(epoch)*0x9e3779b97f4a7c15, uint64(i)))
+		if s.rng == nil {
+			s.pcg = rand.NewPCG(0, 0)
+			s.rng = rand.New(s.pcg)
+			s.bank = newNoiseBank(s.Seed)
+		}
+		s.pcg.Seed(s.Seed^uint64(epoch)*0x9e3779b97f4a7c15, uint64(i))
+		rng = s.rng
 		n := s.Opts.Window.Samples(fe)
 		if cap(s.seg) < n {
 			s.seg = make([]float32, n)
+			s.mel = make([]float32, M*fe.Frames(n))
 		}
 		seg := s.seg[:n]
-		s.Aug.audio(seg, d.audio, w.StartFrame*fe.HopSamples, fe.SampleRateHz, rng)
-		m, err := s.ex.Compute(seg)
-		if err != nil {
-			panic("datasets: internal error: " + err.Error())
+		s.Aug.audio(seg, d.audio, w.StartFrame*fe.HopSamples, fe.SampleRateHz, rng, s.bank)
+		nf, err := s.ex.ComputeInto(s.mel, seg)
+		if err != nil || nf < F {
+			panic(fmt.Sprintf("datasets: internal error: window of %d samples gives %d frames (%v)", n, nf, err))
 		}
-		copy(dst, m.Data().([]float32)[:M*F])
+		for b := 0; b < M; b++ {
+			copy(dst[b*F:(b+1)*F], s.mel[b*nf:b*nf+F])
+		}
 	} else {
 		T := d.frames
 		for b := 0; b < M; b++ {

@@ -15,17 +15,19 @@ import (
 // [Extractor.Frame] allocates nothing. An Extractor is not safe for
 // concurrent use; make one per goroutine.
 type Extractor struct {
-	cfg     Config
-	window  []float64 // (Window)
-	filters []MelFilter
-	fft     *fourier.FFT // any length; the reference path
-	fast    *fft.Real    // power-of-two lengths; nil otherwise
-	buf     []float64    // (FFTSize) windowed, zero-padded frame
-	coeffs  []complex128 // (FFTSize/2+1)
-	spec    []float64    // (FFTSize/2+1) power or magnitude
-	offset  int          // (FFTSize-Window)/2
-	res     map[int]*Resampler
-	blk     *blockPath // Lanes frames at a time (AVX2); nil: one frame at a time
+	cfg      Config
+	window   []float64 // (Window)
+	filters  []MelFilter
+	fft      *fourier.FFT // any length; the reference path
+	fast     *fft.Real    // power-of-two lengths; nil otherwise
+	buf      []float64    // (FFTSize) windowed, zero-padded frame
+	coeffs   []complex128 // (FFTSize/2+1)
+	spec     []float64    // (FFTSize/2+1) power or magnitude
+	offset   int          // (FFTSize-Window)/2
+	res      map[int]*Resampler
+	blk      *blockPath // Lanes frames at a time (AVX2); nil: one frame at a time
+	frameBuf []float32  // (Window) and (Bands): the frame-path scratch of computeInto
+	colBuf   []float32
 }
 
 // blockPath holds what [Extractor.Compute] needs to run fft.Lanes frames
@@ -178,16 +180,39 @@ func (e *Extractor) Compute(samples []float32) (*tensor.Dense, error) {
 		return nil, fmt.Errorf("features: signal of %d samples is shorter than one %d-sample window", len(samples), e.cfg.WindowSamples)
 	}
 	out := make([]float32, e.cfg.Bands*nf)
+	e.computeInto(out, samples, nf)
+	return tensor.New(tensor.WithShape(e.cfg.Bands, nf), tensor.WithBacking(out)), nil
+}
+
+// ComputeInto is [Extractor.Compute] into dst, which must hold at least
+// Bands·Frames(len(samples)) values; it returns the frame count and
+// allocates nothing after its first call (the training loop calls it for
+// every augmented window).
+func (e *Extractor) ComputeInto(dst, samples []float32) (int, error) {
+	nf := e.cfg.Frames(len(samples))
+	if nf == 0 {
+		return 0, fmt.Errorf("features: signal of %d samples is shorter than one %d-sample window", len(samples), e.cfg.WindowSamples)
+	}
+	if len(dst) < e.cfg.Bands*nf {
+		return 0, fmt.Errorf("features: ComputeInto: destination of %d values, need %d·%d", len(dst), e.cfg.Bands, nf)
+	}
+	e.computeInto(dst[:e.cfg.Bands*nf], samples, nf)
+	return nf, nil
+}
+
+func (e *Extractor) computeInto(out, samples []float32, nf int) {
 	pad := 0
 	if e.cfg.PadEnds {
 		pad = e.cfg.WindowSamples / 2
 	}
 	if e.blk != nil {
 		e.computeBlocks(out, samples, nf, pad)
-		return tensor.New(tensor.WithShape(e.cfg.Bands, nf), tensor.WithBacking(out)), nil
+		return
 	}
-	frame := make([]float32, e.cfg.WindowSamples)
-	col := make([]float32, e.cfg.Bands)
+	if len(e.frameBuf) != e.cfg.WindowSamples {
+		e.frameBuf, e.colBuf = make([]float32, e.cfg.WindowSamples), make([]float32, e.cfg.Bands)
+	}
+	frame, col := e.frameBuf, e.colBuf
 	for t := 0; t < nf; t++ {
 		start := t*e.cfg.HopSamples - pad
 		if start >= 0 && start+len(frame) <= len(samples) {
@@ -207,7 +232,6 @@ func (e *Extractor) Compute(samples []float32) (*tensor.Dense, error) {
 			out[m*nf+t] = v
 		}
 	}
-	return tensor.New(tensor.WithShape(e.cfg.Bands, nf), tensor.WithBacking(out)), nil
 }
 
 // computeBlocks is [Extractor.Compute] fft.Lanes frames at a time: the

@@ -33,7 +33,8 @@ type EpochStats struct {
 	ValLoss    float64 `json:"val_fold_loss"`
 	ValAcc     float64 `json:"val_fold_accuracy"`
 	LR         float64 `json:"learning_rate"`
-	Seconds    float64 `json:"seconds"`
+	Seconds    float64 `json:"seconds"`          // training steps, with their sampling
+	ValSeconds float64 `json:"val_fold_seconds"` // the validation pass after them
 	SamplesSec float64 `json:"samples_per_second"`
 	Best       bool    `json:"best_so_far"` // best validation score so far
 }
@@ -61,8 +62,10 @@ func Fit(tr *Trainer, cfg FitConfig, train, val SampleSource, progress FitProgre
 		return nil, fmt.Errorf("nn: empty training set")
 	}
 	in := tr.Net.Input.Size()
-	x := make([]float32, cfg.Batch*in)
-	y := make([]int, cfg.Batch)
+	var bufs [2]batchBuf
+	for k := range bufs {
+		bufs[k] = batchBuf{x: make([]float32, cfg.Batch*in), y: make([]int, cfg.Batch)}
+	}
 	rng := rand.New(rand.NewPCG(cfg.Seed, 0x5eed))
 	order := make([]int, n)
 	for i := range order {
@@ -80,29 +83,47 @@ func Fit(tr *Trainer, cfg FitConfig, train, val SampleSource, progress FitProgre
 		var lossSum float64
 		var correct, seen int
 		var lr float64
+		// the next batch is sampled (augmented, its features computed) on
+		// another goroutine while this one trains: the two alternate between
+		// two buffers, and every sample is a function of (index, epoch)
+		// alone, so the result does not depend on the timing
+		ready, free, stop, done := make(chan int, 2), make(chan int, 2), make(chan struct{}), make(chan struct{})
+		free <- 0
+		free <- 1
+		go func() {
+			defer close(done)
+			prefetch(train, &bufs, order, ep, cfg.Batch, steps, in, ready, free, stop)
+		}()
+		var stepErr error
 		for s := 0; s < steps; s++ {
-			lo, hi := s*cfg.Batch, min((s+1)*cfg.Batch, n)
-			b := hi - lo
-			for k := 0; k < b; k++ {
-				y[k] = train.Sample(order[lo+k], ep, x[k*in:(k+1)*in])
-			}
-			r, err := tr.Step(x[:b*in], y[:b])
+			k := <-ready
+			bb := &bufs[k]
+			r, err := tr.Step(bb.x[:bb.n*in], bb.y[:bb.n])
+			free <- k
 			if err != nil {
-				return hist, fmt.Errorf("nn: epoch %d step %d: %w", ep, s+1, err)
+				stepErr = fmt.Errorf("nn: epoch %d step %d: %w", ep, s+1, err)
+				break
 			}
-			lossSum += r.Loss * float64(b)
+			lossSum += r.Loss * float64(bb.n)
 			correct += r.Correct
-			seen += b
+			seen += bb.n
 			lr = r.LR
 			if progress != nil {
 				progress(ep, s+1, steps, lossSum/float64(seen), float64(correct)/float64(seen), seen, time.Since(t0).Seconds())
 			}
 		}
+		close(stop)
+		<-done // ready has room for both buffers, so the producer never blocks there
+		if stepErr != nil {
+			return hist, stepErr
+		}
 		st := EpochStats{Epoch: ep, Loss: lossSum / float64(seen), Accuracy: float64(correct) / float64(seen), LR: lr}
 		st.Seconds = time.Since(t0).Seconds()
 		st.SamplesSec = float64(seen) / st.Seconds
 		if val != nil {
+			tv := time.Now()
 			ev, err := Evaluate(tr.Net, tr.Loss, val, cfg.Batch)
+			st.ValSeconds = time.Since(tv).Seconds()
 			if err != nil {
 				return hist, err
 			}
@@ -132,6 +153,36 @@ func Fit(tr *Trainer, cfg FitConfig, train, val SampleSource, progress FitProgre
 	copy(tr.Net.Params.Data, bestData)
 	copy(tr.Net.Params.State, bestState)
 	return hist, nil
+}
+
+// batchBuf is one batch being filled or trained on.
+type batchBuf struct {
+	x []float32
+	y []int
+	n int
+}
+
+// prefetch fills the batches of one epoch in order into the buffer
+// indices it takes from free, handing each to ready, until steps batches
+// are done or stop is closed. It is the only caller of src.Sample while
+// it runs.
+func prefetch(src SampleSource, bufs *[2]batchBuf, order []int, epoch, batch, steps, in int, ready chan<- int, free <-chan int, stop <-chan struct{}) {
+	n := len(order)
+	for s := 0; s < steps; s++ {
+		var k int
+		select {
+		case k = <-free:
+		case <-stop:
+			return
+		}
+		lo, hi := s*batch, min((s+1)*batch, n)
+		bb := &bufs[k]
+		bb.n = hi - lo
+		for j := 0; j < bb.n; j++ {
+			bb.y[j] = src.Sample(order[lo+j], epoch, bb.x[j*in:(j+1)*in])
+		}
+		ready <- k
+	}
 }
 
 // Evaluation is the result of [Evaluate].

@@ -340,9 +340,9 @@ func trainOne(o *trainOptions, c *datasets.Corpus, testFold, valFold int, out st
 
 func writeTrainLog(csvPath, pngPath string, hist []nn.EpochStats) error {
 	err := fsutil.WriteWith(csvPath, func(w io.Writer) error {
-		fmt.Fprintln(w, "epoch,train_loss,train_window_accuracy,val_fold_loss,val_fold_window_accuracy,learning_rate,seconds,windows_per_second,best_so_far")
+		fmt.Fprintln(w, "epoch,train_loss,train_window_accuracy,val_fold_loss,val_fold_window_accuracy,learning_rate,seconds,windows_per_second,val_fold_seconds,best_so_far")
 		for _, e := range hist {
-			fmt.Fprintf(w, "%d,%.6f,%.6f,%.6f,%.6f,%.6g,%.3f,%.1f,%v\n", e.Epoch, e.Loss, e.Accuracy, e.ValLoss, e.ValAcc, e.LR, e.Seconds, e.SamplesSec, e.Best)
+			fmt.Fprintf(w, "%d,%.6f,%.6f,%.6f,%.6f,%.6g,%.3f,%.1f,%.3f,%v\n", e.Epoch, e.Loss, e.Accuracy, e.ValLoss, e.ValAcc, e.LR, e.Seconds, e.SamplesSec, e.ValSeconds, e.Best)
 		}
 		return nil
 	})

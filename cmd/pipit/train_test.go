@@ -41,7 +41,7 @@ func TestTrainOnFolderCorpusAndCrossValidate(t *testing.T) {
 	if n := strings.Count(string(log), "\n"); n != 3 {
 		t.Errorf("log has %d lines, want header + 2 epochs", n)
 	}
-	if h, _, _ := strings.Cut(string(log), "\n"); h != "epoch,train_loss,train_window_accuracy,val_fold_loss,val_fold_window_accuracy,learning_rate,seconds,windows_per_second,best_so_far" {
+	if h, _, _ := strings.Cut(string(log), "\n"); h != "epoch,train_loss,train_window_accuracy,val_fold_loss,val_fold_window_accuracy,learning_rate,seconds,windows_per_second,val_fold_seconds,best_so_far" {
 		t.Errorf("log header %q", h)
 	}
 	// eval on the folder corpus re-derives the same folds from the model.

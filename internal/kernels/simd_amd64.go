@@ -85,3 +85,8 @@ func dwFwdRowAVX2(out, x, w *float32, n, c, xstep int, xoffs, woffs *int, ntaps 
 
 //go:noescape
 func dwBackRowAVX2(d, x, w, dx, dw *float32, n, c, xstep int, xoffs, woffs *int, ntaps int)
+
+// fmaPeakAVX2 runs n rounds of 10 independent 8-lane FMAs (simd_amd64.s).
+//
+//go:noescape
+func fmaPeakAVX2(n int)

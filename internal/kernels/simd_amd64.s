@@ -90,3 +90,41 @@ fmatail:
 fmadone:
 	VZEROUPPER
 	RET
+
+// func fmaPeakAVX2(n int)
+// n rounds of 10 independent 8-lane fused multiply-adds (160 flops a
+// round): the measured FMA ceiling the per-layer benchmark compares with.
+TEXT ·fmaPeakAVX2(SB), NOSPLIT, $0-8
+	MOVQ n+0(FP), CX
+	VXORPS Y0, Y0, Y0
+	VXORPS Y1, Y1, Y1
+	VXORPS Y2, Y2, Y2
+	VXORPS Y3, Y3, Y3
+	VXORPS Y4, Y4, Y4
+	VXORPS Y5, Y5, Y5
+	VXORPS Y6, Y6, Y6
+	VXORPS Y7, Y7, Y7
+	VXORPS Y8, Y8, Y8
+	VXORPS Y9, Y9, Y9
+	VXORPS Y10, Y10, Y10
+	VXORPS Y11, Y11, Y11
+	CMPQ CX, $0
+	JE   peakdone
+
+peakloop:
+	VFMADD231PS Y10, Y11, Y0
+	VFMADD231PS Y10, Y11, Y1
+	VFMADD231PS Y10, Y11, Y2
+	VFMADD231PS Y10, Y11, Y3
+	VFMADD231PS Y10, Y11, Y4
+	VFMADD231PS Y10, Y11, Y5
+	VFMADD231PS Y10, Y11, Y6
+	VFMADD231PS Y10, Y11, Y7
+	VFMADD231PS Y10, Y11, Y8
+	VFMADD231PS Y10, Y11, Y9
+	DECQ CX
+	JNZ  peakloop
+
+peakdone:
+	VZEROUPPER
+	RET

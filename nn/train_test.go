@@ -131,7 +131,7 @@ func TestDeterministicAcrossGOMAXPROCS(t *testing.T) {
 		t.Error("weights after 20 steps differ between GOMAXPROCS 1 and 2")
 	}
 	// and for the reference architecture with many shards
-	for _, arch := range []string{"separable"} {
+	for _, arch := range ArchNames() {
 		var ws [2][]float32
 		for i, procs := range []int{1, 2} {
 			runtime.GOMAXPROCS(procs)

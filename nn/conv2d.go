@@ -255,7 +255,7 @@ func (l *Conv2D) runShard(phase, s, lo, hi int) {
 					copy(oi[q*oc:(q+1)*oc], l.Bias)
 				}
 			}
-			kernels.ConvForward(g, oc, xi, l.wT, oi, l.cols[s], l.Bias != nil)
+			kernels.ConvForward(g, oc, xi, l.Weight, l.wT, oi, l.cols[s], l.Bias != nil)
 		case phaseBackward:
 			di := l.dout[i*outSize : (i+1)*outSize]
 			// out = patches·Wᵀ ⇒ dW += doutᵀ·patches, dpatches = dout·W
@@ -271,14 +271,12 @@ func (l *Conv2D) runShard(phase, s, lo, hi int) {
 // product sets out (rows, OutC) = cols (rows, K) · Wᵀ + Bias.
 func (l *Conv2D) product(out, cols []float32, rows int) {
 	oc, k := l.cfg.Out, l.g.KH*l.g.KW*l.g.C
-	if l.Bias == nil {
-		kernels.GemmNNSet(rows, oc, k, cols, l.wT, out)
-		return
+	if l.Bias != nil {
+		for q := 0; q < rows; q++ {
+			copy(out[q*oc:(q+1)*oc], l.Bias)
+		}
 	}
-	for q := 0; q < rows; q++ {
-		copy(out[q*oc:(q+1)*oc], l.Bias)
-	}
-	kernels.GemmNN(rows, oc, k, cols, l.wT, out)
+	kernels.GemmWeights(rows, oc, k, cols, l.Weight, l.wT, out, l.Bias != nil)
 }
 
 // biasGrad adds the column sums of dout (rows, OutC) to shard s's bias

@@ -2,26 +2,22 @@ package kernels
 
 // ConvForward computes one sample of a channels-last convolution,
 // out (OH·OW, oc) = patches(x) · wT, adding to out's values when add is
-// set and overwriting them otherwise. x is (H, W, C) and wT (KH·KW·C, oc),
-// the transposed weights. With AVX2 it reads the patches straight from x
+// set and overwriting them otherwise. x is (H, W, C), w (oc, KH·KW·C) the
+// weights and wT (KH·KW·C, oc) their transpose. With AVX2 it reads the patches straight from x
 // (implicit GEMM): for each output row and kernel row kh, the patches of
 // the row's interior columns are rows KW·C long at a stride of SW·C in x,
 // so one blocked product per (row, kh) covers them, and border columns
 // take the kernel columns that fall inside x. The portable path builds
 // the im2col matrix in cols (g.ColSize() values). It panics on short
 // slices.
-func ConvForward(g ConvGeom, oc int, x, wT, out, cols []float32, add bool) {
+func ConvForward(g ConvGeom, oc int, x, w, wT, out, cols []float32, add bool) {
 	k := g.KH * g.KW * g.C
 	checkLen("ConvForward x", len(x), g.H*g.W*g.C)
 	checkLen("ConvForward wT", len(wT), k*oc)
 	checkLen("ConvForward out", len(out), g.OH*g.OW*oc)
 	if !useSIMD || oc < 8 {
 		Im2col(g, x, cols)
-		if add {
-			GemmNN(g.OH*g.OW, oc, k, cols, wT, out)
-		} else {
-			GemmNNSet(g.OH*g.OW, oc, k, cols, wT, out)
-		}
+		GemmWeights(g.OH*g.OW, oc, k, cols, w, wT, out, add)
 		return
 	}
 	seg := g.KW * g.C

@@ -43,7 +43,9 @@ func TestConvAgainstIm2col(t *testing.T) {
 					for _, add := range []bool{false, true} {
 						out := randSlice(rng, pos*oc)
 						before := append([]float32(nil), out...)
-						ConvForward(g, oc, x, wT, out, cols, add)
+						w := make([]float32, oc*k)
+						Transpose(w, wT, k, oc)
+						ConvForward(g, oc, x, w, wT, out, cols, add)
 						for i, v := range out {
 							w := want[i]
 							if add {

@@ -138,6 +138,25 @@ func GemmNNSet(m, n, k int, a, b, c []float32) {
 	GemmNN(m, n, k, a, b, c)
 }
 
+// GemmWeights computes C = A·Wᵀ (or C += A·Wᵀ with add) for A (M, K),
+// W (N, K) and C (M, N), given W and its transpose wT (K, N): the product
+// of a layer's input with its weights. With AVX2 and N ≥ 8 it runs the
+// blocked kernels on wT; otherwise the portable dot products of [GemmNT]
+// on W, which suit the portable path's short output rows better.
+func GemmWeights(m, n, k int, a, w, wT, c []float32, add bool) {
+	if useSIMD && n >= 8 {
+		checkLen("GemmWeights a", len(a), m*k)
+		checkLen("GemmWeights wT", len(wT), k*n)
+		checkLen("GemmWeights c", len(c), m*n)
+		gemmBlocked(m, n, k, a, k, 1, wT, n, c, n, add)
+		return
+	}
+	if !add {
+		clear(c[:m*n])
+	}
+	GemmNT(m, n, k, a, w, c)
+}
+
 // GemmTN computes C += Aᵀ·B with A (K, M), B (K, N), C (M, N): the weight
 // gradient of a layer, Σ over positions of dout ⊗ input; with AVX2 and
 // N ≥ 8 by the register-blocked micro-kernels. It panics on short slices.

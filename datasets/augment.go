@@ -3,6 +3,8 @@ package datasets
 import (
 	"math"
 	"math/rand/v2"
+
+	"github.com/pipit-audio/pipit/internal/kernels"
 )
 
 // Augment describes the random changes made to training windows. Every
@@ -35,6 +37,7 @@ func DefaultAugment() *Augment {
 // lookups.
 type noiseBank struct {
 	x   []float64
+	x32 []float32 // x in float32, what is mixed in
 	cum []float64
 }
 
@@ -47,18 +50,26 @@ func newNoiseBank(seed uint64) *noiseBank {
 	for i, v := range x {
 		cum[i+1] = cum[i] + v*v
 	}
-	return &noiseBank{x: x, cum: cum}
+	x32 := make([]float32, len(x))
+	for i, v := range x {
+		x32[i] = float32(v)
+	}
+	return &noiseBank{x: x, x32: x32, cum: cum}
 }
 
 // segment returns a random n-sample stretch of the bank and its mean
 // power (a fresh draw when n exceeds the bank).
-func (b *noiseBank) segment(n int, rng *rand.Rand) ([]float64, float64) {
+func (b *noiseBank) segment(n int, rng *rand.Rand) ([]float32, float64) {
 	if b == nil || n > len(b.x) {
 		x := pinkNoise(n, rng)
-		return x, power(x)
+		x32 := make([]float32, n)
+		for i, v := range x {
+			x32[i] = float32(v)
+		}
+		return x32, power(x)
 	}
 	o := rng.IntN(len(b.x) - n + 1)
-	return b.x[o : o+n], (b.cum[o+n] - b.cum[o]) / float64(n)
+	return b.x32[o : o+n], (b.cum[o+n] - b.cum[o]) / float64(n)
 }
 
 // audio writes an augmented copy of clip[start : start+len(dst)] into dst,
@@ -69,30 +80,29 @@ func (a *Augment) audio(dst, clip []float32, start, rateHz int, rng *rand.Rand, 
 		m := int(a.ShiftSeconds * float64(rateHz))
 		shift = rng.IntN(2*m+1) - m
 	}
-	for i := range dst {
-		j := start + shift + i
-		if j >= 0 && j < len(clip) {
-			dst[i] = clip[j]
-		} else {
-			dst[i] = 0
-		}
-	}
 	g := float32(1)
 	if a.GainDB > 0 {
 		g = float32(math.Pow(10, (2*rng.Float64()-1)*a.GainDB/20))
 	}
-	var p float64
-	for i, v := range dst {
-		v *= g
-		dst[i] = v
-		p += float64(v) * float64(v)
+	// dst[i] = g·clip[start+shift+i], zero outside the clip
+	lo := min(max(0, -(start+shift)), len(dst))
+	hi := max(lo, min(len(dst), len(clip)-(start+shift)))
+	clear(dst[:lo])
+	clear(dst[hi:])
+	body := dst[lo:hi:hi]
+	if hi > lo {
+		src := clip[start+shift+lo : start+shift+hi]
+		for i, v := range src {
+			body[i] = v * g
+		}
 	}
-	if a.NoiseProb > 0 && rng.Float64() < a.NoiseProb && p > 0 {
-		noise, pn := bank.segment(len(dst), rng)
-		snr := a.MinSNRdB + rng.Float64()*(a.MaxSNRdB-a.MinSNRdB)
-		k := math.Sqrt(p / float64(len(dst)) / pn / math.Pow(10, snr/10))
-		for i := range dst {
-			dst[i] += float32(k * noise[i])
+	if a.NoiseProb > 0 && rng.Float64() < a.NoiseProb {
+		p := float64(kernels.Dot(body, body)) // Σ dst² (the zeros add nothing)
+		if p > 0 {
+			noise, pn := bank.segment(len(dst), rng)
+			snr := a.MinSNRdB + rng.Float64()*(a.MaxSNRdB-a.MinSNRdB)
+			k := math.Sqrt(p / float64(len(dst)) / pn / math.Pow(10, snr/10))
+			kernels.Axpy(float32(k), noise, dst)
 		}
 	}
 }

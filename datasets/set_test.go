@@ -2,6 +2,7 @@ package datasets
 
 import (
 	"math"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"strings"
@@ -216,5 +217,65 @@ func TestSegments(t *testing.T) {
 	}
 	if rec.N != 19 || math.Abs(rec.StartSec[1]-0.496) > 1e-12 || math.Abs(rec.WindowSec-0.992) > 1e-12 {
 		t.Errorf("recording: %d windows, second at %g s, %g s each", rec.N, rec.StartSec[1], rec.WindowSec)
+	}
+}
+
+// BenchmarkSampleAugmented times one augmented training window (shift,
+// gain, noise, log-mel, normalisation, masks): the per-window cost of the
+// data path that nn.Fit overlaps with the training step.
+func BenchmarkSampleAugmented(b *testing.B) {
+	dir := b.TempDir()
+	c, err := Synthesize(dir, SynthConfig{ClipsPerClass: 2, Seconds: 1, Folds: 2, Seed: 3}, nil)
+	if err != nil {
+		b.Fatal(err)
+	}
+	opts := Options{FrontEnd: features.DefaultConfig(), Window: WindowConfig{Frames: 61, Pad: PadZeros}, KeepAudio: true}
+	s, err := Load(c, allIDs(c), opts)
+	if err != nil {
+		b.Fatal(err)
+	}
+	s.Aug, s.Seed = DefaultAugment(), 5
+	dst := make([]float32, s.InputSize())
+	s.Sample(0, 1, dst)
+	b.ReportAllocs()
+	i := 0
+	for b.Loop() {
+		s.Sample(i%s.Len(), 1+i/s.Len(), dst)
+		i++
+	}
+}
+
+// TestAugmentAudioEdges shifts windows past both ends of a short clip
+// (and wholly off it): every result must be the clip read at one shift in
+// range, zero outside the clip, and every shift must occur.
+func TestAugmentAudioEdges(t *testing.T) {
+	clip := []float32{1, 2, 3, 4}
+	a := &Augment{ShiftSeconds: 3} // ±3 samples at 1 Hz; no gain, no noise
+	rng := rand.New(rand.NewPCG(1, 2))
+	seen := map[int]bool{}
+	for k := 0; k < 400; k++ {
+		dst := []float32{9, 9, 9}
+		start := k % 5
+		a.audio(dst, clip, start, 1, rng, nil)
+		found := false
+		for s := -3; s <= 3 && !found; s++ {
+			ok := true
+			for i, v := range dst {
+				want := float32(0)
+				if j := start + s + i; j >= 0 && j < len(clip) {
+					want = clip[j]
+				}
+				ok = ok && v == want
+			}
+			if ok {
+				found, seen[s] = true, true
+			}
+		}
+		if !found {
+			t.Fatalf("start %d: %v is the clip at no shift in ±3", start, dst)
+		}
+	}
+	if len(seen) != 7 {
+		t.Errorf("shifts seen %v, want all of -3..3", seen)
 	}
 }

@@ -90,3 +90,8 @@ func dwBackRowAVX2(d, x, w, dx, dw *float32, n, c, xstep int, xoffs, woffs *int,
 //
 //go:noescape
 func fmaPeakAVX2(n int)
+
+// axpyAVX2 computes y[i] += a·x[i] for i < n (simd_amd64.s).
+//
+//go:noescape
+func axpyAVX2(a float32, x, y *float32, n int)

@@ -128,3 +128,49 @@ peakloop:
 peakdone:
 	VZEROUPPER
 	RET
+// func axpyAVX2(a float32, x, y *float32, n int)
+// y[i] += a·x[i], 16 then 8 lanes at a time, then a scalar tail.
+TEXT ·axpyAVX2(SB), NOSPLIT, $0-32
+	VBROADCASTSS a+0(FP), Y0
+	MOVQ x+8(FP), SI
+	MOVQ y+16(FP), DI
+	MOVQ n+24(FP), CX
+
+axpy16:
+	CMPQ CX, $16
+	JL   axpy8
+	VMOVUPS (DI), Y1
+	VMOVUPS 32(DI), Y2
+	VFMADD231PS (SI), Y0, Y1
+	VFMADD231PS 32(SI), Y0, Y2
+	VMOVUPS Y1, (DI)
+	VMOVUPS Y2, 32(DI)
+	ADDQ $64, SI
+	ADDQ $64, DI
+	SUBQ $16, CX
+	JMP  axpy16
+
+axpy8:
+	CMPQ CX, $8
+	JL   axpytail
+	VMOVUPS (DI), Y1
+	VFMADD231PS (SI), Y0, Y1
+	VMOVUPS Y1, (DI)
+	ADDQ $32, SI
+	ADDQ $32, DI
+	SUBQ $8, CX
+
+axpytail:
+	CMPQ CX, $0
+	JE   axpydone
+	VMOVSS      (DI), X1
+	VFMADD231SS (SI), X0, X1
+	VMOVSS      X1, (DI)
+	ADDQ $4, SI
+	ADDQ $4, DI
+	DECQ CX
+	JMP  axpytail
+
+axpydone:
+	VZEROUPPER
+	RET

@@ -76,3 +76,5 @@ func dwFwdRowAVX2(out, x, w *float32, n, c, xstep int, xoffs, woffs *int, ntaps 
 func dwBackRowAVX2(d, x, w, dx, dw *float32, n, c, xstep int, xoffs, woffs *int, ntaps int) {
 	panic("kernels: no SIMD path")
 }
+
+func axpyAVX2(a float32, x, y *float32, n int) { panic("kernels: no SIMD path") }

@@ -160,3 +160,38 @@ func min32(v, hi float32) float32 {
 	}
 	return hi
 }
+
+// Axpy adds a·x[i] to y[i] for i < len(x) (augmentation mixes noise into
+// audio with it). It panics if y is shorter than x.
+func Axpy(a float32, x, y []float32) {
+	checkLen("Axpy y", len(y), len(x))
+	if len(x) == 0 {
+		return
+	}
+	if useSIMD {
+		axpyAVX2(a, &x[0], &y[0], len(x))
+		return
+	}
+	y = y[:len(x)]
+	for i, v := range x {
+		y[i] += a * v
+	}
+}
+
+// Dot returns Σ x[i]·y[i] for i < len(x), summed in float32 (the SIMD path
+// in two 8-lane partial sums). It panics if y is shorter than x.
+func Dot(x, y []float32) float32 {
+	checkLen("Dot y", len(y), len(x))
+	if len(x) == 0 {
+		return 0
+	}
+	if useSIMD {
+		return dotAVX2(&x[0], &y[0], len(x))
+	}
+	y = y[:len(x)]
+	var s float32
+	for i, v := range x {
+		s += v * y[i]
+	}
+	return s
+}

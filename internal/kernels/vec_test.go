@@ -161,3 +161,24 @@ func TestChanKernelsPathsAgree(t *testing.T) {
 		}
 	}
 }
+
+func TestAxpyAndDot(t *testing.T) {
+	withPaths(t, func(t *testing.T, _ bool) {
+		rng := rand.New(rand.NewPCG(6, 6))
+		for _, n := range vecLens {
+			x, y := randSlice(rng, n), randSlice(rng, n)
+			y0 := append([]float32(nil), y...)
+			Axpy(0.75, x, y)
+			var want float64
+			for i := range x {
+				if d := float64(y[i]) - (float64(y0[i]) + 0.75*float64(x[i])); math.Abs(d) > 1e-6 {
+					t.Fatalf("Axpy n=%d: [%d] off by %g", n, i, d)
+				}
+				want += float64(x[i]) * float64(y0[i])
+			}
+			if got := Dot(x, y0); !near(got, want) {
+				t.Fatalf("Dot n=%d = %g, want %g", n, got, want)
+			}
+		}
+	})
+}

@@ -15,9 +15,10 @@ import (
 
 // roundingDriver reads records {int32 op, a, b, c} from stdin and writes
 // one int32 per record: op 1 pipit_mul_q31(a, b), 2 pipit_shr_round(a, b),
-// 3 pipit_requant(a, b, c).
+// 3 pipit_requant(a, b, c), 4 pipit_requant_fast(a, b, c) (the fast
+// kernels' requantisation, pipit_rt_fast.c).
 const roundingDriver = `#include <stdio.h>
-#include "pipit_rt.h"
+#include "pipit_rt_fast.h"
 int main(void) {
   int32_t r[4], y;
   while (fread(r, sizeof r, 1, stdin) == 1) {
@@ -25,6 +26,7 @@ int main(void) {
     case 1: y = pipit_mul_q31(r[1], r[2]); break;
     case 2: y = pipit_shr_round(r[1], (int)r[2]); break;
     case 3: y = pipit_requant(r[1], r[2], r[3]); break;
+    case 4: y = pipit_requant_fast(r[1], r[2], r[3]); break;
     default: return 2;
     }
     fwrite(&y, sizeof y, 1, stdout);
@@ -44,13 +46,14 @@ func runCRounding(t *testing.T, cases []roundingCase) []int32 {
 		t.Skip("no gcc on PATH; .ci/run installs it")
 	}
 	dir := t.TempDir()
-	for name, data := range map[string][]byte{"pipit_rt.h": cref.RuntimeHeader, "pipit_rt.c": cref.RuntimeSource, "drv.c": []byte(roundingDriver)} {
+	for name, data := range map[string][]byte{"pipit_rt.h": cref.RuntimeHeader, "pipit_rt.c": cref.RuntimeSource,
+		"pipit_rt_fast.h": cref.FastRuntimeHeader, "pipit_rt_fast.c": cref.FastRuntimeSource, "drv.c": []byte(roundingDriver)} {
 		if err := os.WriteFile(filepath.Join(dir, name), data, 0o644); err != nil {
 			t.Fatal(err)
 		}
 	}
 	exe := filepath.Join(dir, "drv")
-	build := exec.Command(cc, "-std=c99", "-O2", "-Wall", "-Werror", "-fsanitize=undefined", "-fno-sanitize-recover=all", "-o", exe, "drv.c", "pipit_rt.c")
+	build := exec.Command(cc, "-std=c99", "-O2", "-Wall", "-Werror", "-fsanitize=undefined", "-fno-sanitize-recover=all", "-o", exe, "drv.c", "pipit_rt.c", "pipit_rt_fast.c")
 	build.Dir = dir
 	if out, err := build.CombinedOutput(); err != nil {
 		t.Fatalf("%v\n%s", err, out)
@@ -159,6 +162,16 @@ func TestCRoundingHelpers(t *testing.T) {
 		m0 := int32(1<<30 + rng.Int32N(1<<30))
 		sh := int32(rng.IntN(40)) - 8
 		cases = append(cases, roundingCase{3, int32(rng.Uint32()) >> rng.IntN(20), m0, sh})
+		// the fast kernels' requantisation: any accumulator, multipliers in
+		// [2^30, 2^31), shifts −31..31, and accumulators that put the
+		// rounding shift on an exact tie (m0 = 2^30 halves exactly, so
+		// acc = 2·(2j+1)·2^(s−1) gives a tie of sign j's)
+		s := int32(rng.IntN(63)) - 31
+		cases = append(cases, roundingCase{4, int32(rng.Uint32()), int32(1<<30 + rng.Int32N(1<<30)), s})
+		if s > 0 && s < 30 {
+			j := int64(rng.Int32N(1<<(30-s))) - 1<<(29-s)
+			cases = append(cases, roundingCase{4, int32(2 * (2*j + 1) << (s - 1)), 1 << 30, s})
+		}
 	}
 	got := runCRounding(t, cases)
 	for i, e := range examples {
@@ -177,7 +190,7 @@ func TestCRoundingHelpers(t *testing.T) {
 			if c.b > 0 && c.a < 0 && c.a&(1<<c.b-1) == 1<<(c.b-1) {
 				ties++
 			}
-		case 3:
+		case 3, 4:
 			want = Rescale(c.a, c.b, int(c.c))
 		}
 		if got[i] != want {

@@ -95,6 +95,20 @@ func TestEmulatedCortexM4(t *testing.T) {
 		if !bytes.Equal(i8b(outs[len(outs)-1]), i8b(r.Logits[k])) {
 			t.Errorf("input %d: emulated Cortex-M4 logits %v, Go engine %v", k, r.Logits[k], outs[len(outs)-1])
 		}
+		if !bytes.Equal(i8b(outs[len(outs)-1]), i8b(r.FastLogits[k])) {
+			t.Errorf("input %d: fast kernels' logits %v, Go engine %v", k, r.FastLogits[k], outs[len(outs)-1])
+		}
+	}
+	if r.RequantCases == 0 || r.RequantBad != 0 {
+		t.Errorf("on the core, pipit_requant_fast differs from pipit_requant in %d of %d cases", r.RequantBad, r.RequantCases)
+	}
+	for i, l := range doc.Layers {
+		if l.MACs > 0 {
+			per := func(ticks uint64) float64 {
+				return float64(ticks*cref.InstructionsPerTick) / float64(len(inputs)) / float64(l.MACs)
+			}
+			t.Logf("layer %d %s: %.2f instructions per MAC (reference), %.2f (fast kernels)", i, l.Op, per(r.LayerTicks[i]), per(r.FastLayerTicks[i]))
+		}
 	}
 	// Go's inputs from the same recording: normalised, quantised windows of
 	// W frames every hopFrames frames.

@@ -267,7 +267,7 @@ func runDemo(out, cc string, epochs int, stderr io.Writer) (*demoReport, error) 
 		oc := rep.Onchip
 		fmt.Fprintf(stderr, "logits bit-exact: %v (test inputs), %v (%d recording inputs); %.2f instructions per MAC; stack %d B\n",
 			oc.LogitsBitExact, oc.RecLogitsExact, oc.RecordingInputs, oc.InstrPerMAC, oc.StackBytes)
-		if !oc.LogitsBitExact || !oc.RecLogitsExact {
+		if !oc.LogitsBitExact || !oc.RecLogitsExact || !oc.FastLogitsBitExact || oc.FastRequantDiffer != 0 {
 			return nil, fmt.Errorf("the emulated Cortex-M4's logits differ from the Go engine's")
 		}
 	}
@@ -402,6 +402,8 @@ func printDemo(w io.Writer, r *demoReport) {
 			map[bool]string{true: "bit-exact", false: "DIFFER"}[oc.LogitsBitExact && oc.RecLogitsExact], oc.Sizes.RuntimeCode+oc.Sizes.FrontEndCode, oc.ConstBytes, oc.StaticRAM, oc.StackBytes)
 		fmt.Fprintf(w, "                       %.0f instructions/frame, %.0f /inference (%.2f per MAC); QEMU counts instructions, not cycles\n",
 			oc.InstrPerFrame, oc.InstrPerInference, oc.InstrPerMAC)
+		fmt.Fprintf(w, "                       fast kernels: logits %s, %.0f /inference (%.2f per MAC)\n",
+			map[bool]string{true: "bit-exact", false: "DIFFER"}[oc.FastLogitsBitExact], oc.FastInstrPerInference, oc.FastInstrPerMAC)
 	} else if r.OnchipNote != "" {
 		fmt.Fprintf(w, "  emulated Cortex-M4   %s\n", r.OnchipNote)
 	}

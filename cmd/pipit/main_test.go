@@ -127,7 +127,8 @@ func TestDemoRuns(t *testing.T) {
 		t.Logf("emulated Cortex-M4 not checked: %v", err)
 	} else {
 		oc := rep.Onchip
-		if oc == nil || !oc.LogitsBitExact || !oc.RecLogitsExact || oc.SamePredictions != oc.RecordingInputs || oc.FeaturesWorstLSB > 1 ||
+		if oc == nil || !oc.LogitsBitExact || !oc.RecLogitsExact || !oc.FastLogitsBitExact || oc.FastRequantChecked == 0 || oc.FastRequantDiffer != 0 ||
+			oc.FastInstrPerMAC <= 0 || oc.FastInstrPerMAC >= oc.InstrPerMAC || oc.SamePredictions != oc.RecordingInputs || oc.FeaturesWorstLSB > 1 ||
 			oc.ConstBytes != oc.ConstModel || oc.StaticRAM != oc.StaticRAMModel || oc.StackBytes <= 0 || oc.InstrPerMAC <= 0 {
 			t.Errorf("emulated run: %+v", oc)
 		}

@@ -44,8 +44,16 @@ type onchipReport struct {
 	InstrPerInference float64   `json:"network_instructions_per_inference"`
 	InstrPerMAC       float64   `json:"network_instructions_per_mac"`
 	LayerInstrPerMAC  []float64 `json:"layer_instructions_per_mac"` // 0 for layers without MACs
-	InstrPerSecond    float64   `json:"instructions_per_second_of_audio"`
-	Seconds           float64   `json:"seconds"`
+	// the faster kernels of pipit_rt_fast.c (DSP extension), same bits
+	FastLogitsBitExact    bool      `json:"fast_kernels_logits_bit_exact"`
+	FastRequantChecked    uint64    `json:"fast_requant_cases_checked"` // on the core, against pipit_requant
+	FastRequantDiffer     uint64    `json:"fast_requant_cases_differing"`
+	FastInstrPerInference float64   `json:"fast_kernels_instructions_per_inference"`
+	FastInstrPerMAC       float64   `json:"fast_kernels_instructions_per_mac"`
+	FastLayerInstrPerMAC  []float64 `json:"fast_kernels_layer_instructions_per_mac"`
+	FastScratchBytes      int       `json:"fast_kernels_scratch_bytes"`
+	InstrPerSecond        float64   `json:"instructions_per_second_of_audio"`
+	Seconds               float64   `json:"seconds"`
 }
 
 func newOnchipCmd() *cobra.Command {
@@ -189,9 +197,13 @@ func runOnchip(q *quant.Model, a *features.Audio, nInputs, chunk int, dir string
 	rep := &onchipReport{Machine: "qemu-system-arm -M mps2-an386 (Cortex-M4F), -icount shift=0", Flags: fmt.Sprint(cref.M4Flags),
 		TestInputs: len(tests), LogitsBitExact: true, RecordingInputs: len(r.RecInputs), RecLogitsExact: true, Sizes: *sizes, StackBytes: r.StackBytes}
 	logits := func(in []int8) []int8 { o := q.RunAll(in); return o[len(o)-1] }
+	rep.FastLogitsBitExact = true
 	for k, in := range tests {
 		rep.LogitsBitExact = rep.LogitsBitExact && bytes.Equal(int8Bytes(logits(in)), int8Bytes(r.Logits[k]))
+		rep.FastLogitsBitExact = rep.FastLogitsBitExact && bytes.Equal(int8Bytes(logits(in)), int8Bytes(r.FastLogits[k]))
 	}
+	rep.FastRequantChecked, rep.FastRequantDiffer = r.RequantCases, r.RequantBad
+	rep.FastScratchBytes = sizes.Symbols["scratch"]
 	if len(r.RecInputs) != len(goInputs) {
 		return nil, fmt.Errorf("the emulated front end made %d inputs from the recording, Go %d", len(r.RecInputs), len(goInputs))
 	}
@@ -215,6 +227,7 @@ func runOnchip(q *quant.Model, a *features.Audio, nInputs, chunk int, dir string
 		switch {
 		case name == "pool" || name == "fe":
 			rep.StaticRAM += n
+		case name == "scratch": // the fast kernels' buffer, reported apart
 		case name != cPrefix+"_model":
 			rep.ConstBytes += n
 		}
@@ -225,13 +238,19 @@ func runOnchip(q *quant.Model, a *features.Audio, nInputs, chunk int, dir string
 	rep.InstrPerFlop = rep.InstrPerFrame / float64(c.FlopsPerFrame)
 	rep.InstrPerInference = float64(r.NetTicks*cref.InstructionsPerTick) / float64(len(r.RecInputs))
 	rep.InstrPerMAC = rep.InstrPerInference / float64(doc.Totals.MACs)
+	var fastTicks uint64
 	for i, l := range doc.Layers {
-		v := 0.0
+		v, f := 0.0, 0.0
 		if l.MACs > 0 {
 			v = float64(r.LayerTicks[i]*cref.InstructionsPerTick) / float64(len(tests)) / float64(l.MACs)
+			f = float64(r.FastLayerTicks[i]*cref.InstructionsPerTick) / float64(len(tests)) / float64(l.MACs)
 		}
 		rep.LayerInstrPerMAC = append(rep.LayerInstrPerMAC, v)
+		rep.FastLayerInstrPerMAC = append(rep.FastLayerInstrPerMAC, f)
+		fastTicks += r.FastLayerTicks[i]
 	}
+	rep.FastInstrPerInference = float64(fastTicks*cref.InstructionsPerTick) / float64(len(tests))
+	rep.FastInstrPerMAC = rep.FastInstrPerInference / float64(doc.Totals.MACs)
 	ips, _ := nn.InferencesPerSecond(float64(info.Window.Samples(cfg))/float64(cfg.SampleRateHz), info.Window.Overlap)
 	rep.InstrPerSecond = rep.InstrPerFrame*c.FramesPerSecond + rep.InstrPerInference*ips
 	rep.Seconds = time.Since(t0).Seconds()
@@ -269,4 +288,14 @@ func printOnchip(w io.Writer, r *onchipReport) {
 		}
 	}
 	fmt.Fprintf(w, "\n  whole path  %10.0f per second of audio\n", r.InstrPerSecond)
+	fmt.Fprintf(w, "\n  fast kernels (pipit_rt_fast.c, DSP extension): logits %s; requantisation %d/%d cases as the reference\n",
+		ok[r.FastLogitsBitExact], r.FastRequantChecked-r.FastRequantDiffer, r.FastRequantChecked)
+	fmt.Fprintf(w, "  network     %10.0f per inference, %d B scratch, %d B code\n", r.FastInstrPerInference, r.FastScratchBytes, r.Sizes.FastCode)
+	fmt.Fprintf(w, "  per layer, per MAC:")
+	for i, v := range r.FastLayerInstrPerMAC {
+		if v > 0 {
+			fmt.Fprintf(w, " %d:%.2f", i, v)
+		}
+	}
+	fmt.Fprintln(w)
 }

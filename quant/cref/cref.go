@@ -21,6 +21,12 @@ var (
 	RuntimeHeader []byte
 	//go:embed c/pipit_rt.c
 	RuntimeSource []byte
+	// FastRuntimeHeader and FastRuntimeSource are the faster kernels
+	// (DSP-extension dot products on Cortex-M4) that compute the same bits.
+	//go:embed c/pipit_rt_fast.h
+	FastRuntimeHeader []byte
+	//go:embed c/pipit_rt_fast.c
+	FastRuntimeSource []byte
 )
 
 // driver reads int8 samples from argv[1], runs the model layer by layer in

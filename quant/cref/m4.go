@@ -72,10 +72,11 @@ type M4Job struct {
 
 // M4Sizes are the toolchain's own figures for an emulated build.
 type M4Sizes struct {
-	RuntimeCode  int            `json:"runtime_code_bytes"`   // .text of pipit_rt.o
-	FrontEndCode int            `json:"front_end_code_bytes"` // .text of pipit_fe.o
-	Sections     map[string]int `json:"sections"`             // arm-none-eabi-size -A of the image
-	Symbols      map[string]int `json:"symbols"`              // arm-none-eabi-nm -S: data symbols of the export
+	RuntimeCode  int            `json:"runtime_code_bytes"`      // .text of pipit_rt.o
+	FrontEndCode int            `json:"front_end_code_bytes"`    // .text of pipit_fe.o
+	FastCode     int            `json:"fast_kernels_code_bytes"` // .text of pipit_rt_fast.o
+	Sections     map[string]int `json:"sections"`                // arm-none-eabi-size -A of the image
+	Symbols      map[string]int `json:"symbols"`                 // arm-none-eabi-nm -S: data symbols of the export
 }
 
 // M4Result is what the emulated run printed, with the sizes.
@@ -83,6 +84,9 @@ type M4Result struct {
 	CalibTicks, CalibInstructions uint64
 	Logits                        [][]int8 // per job input
 	LayerTicks                    []uint64 // per layer, summed over the job inputs
+	FastLogits                    [][]int8 // per job input, on the fast kernels
+	FastLayerTicks                []uint64 // per layer on the fast kernels
+	RequantCases, RequantBad      uint64   // the on-target check of pipit_requant_fast
 	RecInputs                     [][]int8 // inputs the front end made from the recording
 	RecLogits                     [][]int8
 	FETicks, Frames               uint64
@@ -150,6 +154,7 @@ func BuildM4(dir string, t M4Tools, j M4Job) (string, *M4Sizes, error) {
 		return "", nil, fmt.Errorf("cref: %w", err)
 	}
 	if err := writeFiles(dir, map[string][]byte{"pipit_rt.h": RuntimeHeader, "pipit_rt.c": RuntimeSource, "pipit_fe.h": FrontEndHeader, "pipit_fe.c": FrontEndSource,
+		"pipit_rt_fast.h": FastRuntimeHeader, "pipit_rt_fast.c": FastRuntimeSource,
 		"model.h": []byte(j.NetHeader), "fe.h": []byte(j.FEHeader), "inputs.h": []byte(inputsHeader(j)),
 		"startup.c": m4Startup, "m4.h": m4Header, "link.ld": m4Linker, "harness.c": m4Harness}); err != nil {
 		return "", nil, err
@@ -164,9 +169,9 @@ func BuildM4(dir string, t M4Tools, j M4Job) (string, *M4Sizes, error) {
 		return string(out), nil
 	}
 	strict := []string{"-std=c99", "-Wall", "-Wextra", "-Werror"}
-	for _, src := range []string{"pipit_rt.c", "pipit_fe.c", "harness.c", "startup.c"} {
+	for _, src := range []string{"pipit_rt.c", "pipit_rt_fast.c", "pipit_fe.c", "harness.c", "startup.c"} {
 		args := append(append(append([]string{}, M4Flags...), strict...), "-c", src, "-o", strings.TrimSuffix(src, ".c")+".o")
-		if src == "pipit_rt.c" || src == "pipit_fe.c" {
+		if src == "pipit_rt.c" || src == "pipit_rt_fast.c" || src == "pipit_fe.c" {
 			args = append(args, "-pedantic")
 		}
 		if _, err := run(t.CC, args...); err != nil {
@@ -175,7 +180,7 @@ func BuildM4(dir string, t M4Tools, j M4Job) (string, *M4Sizes, error) {
 	}
 	elf := filepath.Join(dir, "pipit_m4.elf")
 	link := append(append([]string{}, M4Flags...), "-nostartfiles", "-T", "link.ld", "-Wl,--gc-sections", "-o", elf,
-		"startup.o", "harness.o", "pipit_rt.o", "pipit_fe.o", "-lm")
+		"startup.o", "harness.o", "pipit_rt.o", "pipit_rt_fast.o", "pipit_fe.o", "-lm")
 	if _, err := run(t.CC, link...); err != nil {
 		return "", nil, err
 	}
@@ -199,6 +204,9 @@ func BuildM4(dir string, t M4Tools, j M4Job) (string, *M4Sizes, error) {
 	if sz.FrontEndCode, err = textOf("pipit_fe.o"); err != nil {
 		return "", nil, err
 	}
+	if sz.FastCode, err = textOf("pipit_rt_fast.o"); err != nil {
+		return "", nil, err
+	}
 	out, err := run(t.Size, "-A", elf)
 	if err != nil {
 		return "", nil, err
@@ -209,7 +217,7 @@ func BuildM4(dir string, t M4Tools, j M4Job) (string, *M4Sizes, error) {
 	}
 	for _, ln := range strings.Split(out, "\n") {
 		f := strings.Fields(ln)
-		if len(f) != 4 || !strings.HasPrefix(f[3], j.Prefix+"_") && f[3] != "pool" && f[3] != "fe" {
+		if len(f) != 4 || !strings.HasPrefix(f[3], j.Prefix+"_") && f[3] != "pool" && f[3] != "fe" && f[3] != "scratch" {
 			continue
 		}
 		if n, err := strconv.ParseInt(f[1], 16, 64); err == nil {
@@ -252,7 +260,7 @@ func RunM4(elf string, t M4Tools, j M4Job, timeout time.Duration) (*M4Result, er
 	if runErr != nil || err != nil {
 		return nil, fmt.Errorf("cref: qemu-system-arm on %s: %v %v\n%s%s", elf, runErr, err, tail(string(out)), stderr.String())
 	}
-	r := &M4Result{Output: string(out), LayerTicks: make([]uint64, j.Layers)}
+	r := &M4Result{Output: string(out), LayerTicks: make([]uint64, j.Layers), FastLayerTicks: make([]uint64, j.Layers)}
 	sc := bufio.NewScanner(strings.NewReader(r.Output))
 	sc.Buffer(nil, 1<<22)
 	ended := false
@@ -282,7 +290,7 @@ func RunM4(elf string, t M4Tools, j M4Job, timeout time.Duration) (*M4Result, er
 		switch f[0] {
 		case "K":
 			r.CalibTicks, r.CalibInstructions = num(1), num(2)
-		case "N", "C", "R":
+		case "N", "C", "R", "G":
 			n := j.OutputSize
 			if f[0] == "C" {
 				n = j.InputSize
@@ -296,6 +304,8 @@ func RunM4(elf string, t M4Tools, j M4Job, timeout time.Duration) (*M4Result, er
 				r.Logits = append(r.Logits, v)
 			case "C":
 				r.RecInputs = append(r.RecInputs, v)
+			case "G":
+				r.FastLogits = append(r.FastLogits, v)
 			default:
 				r.RecLogits = append(r.RecLogits, v)
 			}
@@ -303,6 +313,12 @@ func RunM4(elf string, t M4Tools, j M4Job, timeout time.Duration) (*M4Result, er
 			if i := int(num(1)); i < len(r.LayerTicks) {
 				r.LayerTicks[i] = num(2)
 			}
+		case "M":
+			if i := int(num(1)); i < len(r.FastLayerTicks) {
+				r.FastLayerTicks[i] = num(2)
+			}
+		case "V":
+			r.RequantCases, r.RequantBad = num(1), num(2)
 		case "F":
 			r.FETicks, r.Frames = num(1), num(2)
 		case "P":
@@ -319,7 +335,7 @@ func RunM4(elf string, t M4Tools, j M4Job, timeout time.Duration) (*M4Result, er
 			return nil, bad()
 		}
 	}
-	if !ended || len(r.Logits) != len(j.Inputs) {
+	if !ended || len(r.Logits) != len(j.Inputs) || len(r.FastLogits) != len(j.Inputs) {
 		return nil, fmt.Errorf("cref: emulated run ended early (%d of %d inputs)\n%s", len(r.Logits), len(j.Inputs), tail(r.Output))
 	}
 	// The calibration loop runs 10^6 instructions plus the timer reads.

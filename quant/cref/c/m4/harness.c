@@ -4,6 +4,9 @@
  *   K ticks instructions   timer calibration on a loop of known length
  *   N k hex               logits of test input k (network only)
  *   L i ticks             layer i, timer ticks summed over the test inputs
+ *   G k hex               logits of test input k on the fast kernels
+ *   M i ticks             layer i on the fast kernels (pipit_rt_fast.c)
+ *   V cases mismatches    pipit_requant_fast against pipit_requant
  *   C k hex               input k computed by the front end on the recording
  *   R k hex               the network's logits on it
  *   F ticks frames        front end (pipit_fe_push, every frame)
@@ -18,6 +21,7 @@
 #include "inputs.h"
 #include "m4.h"
 #include "model.h"
+#include "pipit_rt_fast.h"
 
 static PIPIT_M4_FE_STATE fe;
 static int8_t pool[PIPIT_M4_POOL_BYTES] PIPIT_ALIGN4;
@@ -109,6 +113,38 @@ int main(void) {
     put_hex('N', k, pipit_output(&PIPIT_M4_MODEL, pool), PIPIT_M4_OUTPUT_SIZE);
   }
   for (i = 0; i < PIPIT_M4_LAYERS; i++) put_nums('L', (uint32_t)i, layer_ticks[i]);
+  for (i = 0; i < PIPIT_M4_LAYERS; i++) layer_ticks[i] = 0;
+  for (k = 0; k < PIPIT_TEST_INPUTS; k++) {
+    memcpy(pipit_input(&PIPIT_M4_MODEL, pool), pipit_test_inputs[k], PIPIT_M4_INPUT_SIZE);
+    for (i = 0; i < PIPIT_M4_LAYERS; i++) {
+      t0 = pipit_m4_ticks();
+      if (pipit_run_layer_fast(&PIPIT_M4_MODEL, i, pool) != PIPIT_OK) return 1;
+      layer_ticks[i] += pipit_m4_ticks() - t0;
+    }
+    put_hex('G', k, pipit_output(&PIPIT_M4_MODEL, pool), PIPIT_M4_OUTPUT_SIZE);
+  }
+  for (i = 0; i < PIPIT_M4_LAYERS; i++) put_nums('M', (uint32_t)i, layer_ticks[i]);
+  {
+    /* the fast requantisation on the target's own compiler output: an LCG
+     * (Numerical Recipes' constants) over accumulators, multipliers in
+     * [2^30, 2^31) and shifts 0..31, every eighth case an exact tie */
+    uint32_t x = 12345u, n, bad = 0;
+    for (n = 0; n < 200000u; n++) {
+      int32_t acc, m0, sh;
+      x = x * 1664525u + 1013904223u;
+      acc = (int32_t)x;
+      x = x * 1664525u + 1013904223u;
+      m0 = (int32_t)(0x40000000u | (x >> 2));
+      x = x * 1664525u + 1013904223u;
+      sh = (int32_t)(x >> 27);
+      if ((n & 7) == 0 && sh > 0 && sh < 30) {
+        m0 = 0x40000000;
+        acc = (int32_t)((uint32_t)(2 * ((acc >> (31 - (30 - sh))) | 1)) << (sh - 1));
+      }
+      if (pipit_requant_fast(acc, m0, sh) != pipit_requant(acc, m0, sh)) bad++;
+    }
+    put_nums('V', n, bad);
+  }
   PIPIT_M4_FE_INIT(&fe);
   for (pos = 0; pos < PIPIT_TEST_PCM_SAMPLES; pos += PIPIT_TEST_CHUNK) {
     int32_t left = PIPIT_TEST_PCM_SAMPLES - pos < PIPIT_TEST_CHUNK ? PIPIT_TEST_PCM_SAMPLES - pos : PIPIT_TEST_CHUNK, used;

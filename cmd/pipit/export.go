@@ -49,6 +49,8 @@ func newExportCmd() *cobra.Command {
                      layers in execution order, memory plan, totals
   pipit_net.h        the blob as a const array, the layer table and #defines
   pipit_rt.h/.c      the C99 reference runtime that runs pipit_net.h
+  pipit_rt_fast.h/.c faster kernels computing the same bits (Cortex-M4 DSP
+                     extension; portable C elsewhere), beside the reference
   pipit_net_fe.h     the front end's tables (window, twiddles, mel triangles,
                      band statistics, input quantisation) for pipit_fe.c
   pipit_fe.h/.c      the C99 front end: 16-bit PCM in, int8 network input out
@@ -91,11 +93,11 @@ func runExport(q *quant.Model, dir string) (*exportReport, error) {
 		return nil, err
 	}
 	rep := &exportReport{Dir: dir, Blob: filepath.Join(dir, "model.blob"), Scheme: filepath.Join(dir, "model.scheme.json"), Header: filepath.Join(dir, cPrefix+".h"),
-		Runtime:    []string{filepath.Join(dir, "pipit_rt.h"), filepath.Join(dir, "pipit_rt.c")},
+		Runtime:    []string{filepath.Join(dir, "pipit_rt.h"), filepath.Join(dir, "pipit_rt.c"), filepath.Join(dir, "pipit_rt_fast.h"), filepath.Join(dir, "pipit_rt_fast.c")},
 		FlashBytes: doc.Totals.FlashBytes, WeightBytes: doc.Totals.WeightBytes, OverheadBytes: doc.Totals.OverheadBytes,
 		RAMBytes: doc.Totals.RAMBytes, MACs: doc.Totals.MACs, CRC32: doc.Blob.CRC32}
 	files := map[string][]byte{rep.Blob: blob, rep.Header: []byte(quant.CHeader(blob, doc, cPrefix)),
-		rep.Runtime[0]: cref.RuntimeHeader, rep.Runtime[1]: cref.RuntimeSource}
+		rep.Runtime[0]: cref.RuntimeHeader, rep.Runtime[1]: cref.RuntimeSource, rep.Runtime[2]: cref.FastRuntimeHeader, rep.Runtime[3]: cref.FastRuntimeSource}
 	if fe, note, err := deviceFrontEnd(q); err != nil {
 		return nil, err
 	} else if note != "" {

@@ -25,7 +25,7 @@ import scipy.fft
 import scipy.signal
 import torch
 
-RATE, WIN, HOP, BANDS, TOP_DB, CHUNK = 16000, 512, 256, 40, 80.0, 1024
+RATE, WIN, HOP, BANDS, FLOOR_BELOW_PEAK_DB, CHUNK = 16000, 512, 256, 40, 80.0, 1024
 
 
 def htk(f):
@@ -48,7 +48,7 @@ def logmel_numpy(x, win, fb):
     frames = np.lib.stride_tricks.sliding_window_view(x, WIN)[::HOP]
     spec = np.abs(np.fft.rfft(frames * win, axis=1)) ** 2
     v = 10.0 * np.log10(np.maximum(spec @ fb.T, 1e-10))
-    return np.maximum(v, v.max(axis=1, keepdims=True) - TOP_DB)
+    return np.maximum(v, v.max(axis=1, keepdims=True) - FLOOR_BELOW_PEAK_DB)
 
 
 def logmel_scipy(x, win32, fbt32):
@@ -59,7 +59,7 @@ def logmel_scipy(x, win32, fbt32):
         p = c.real * c.real + c.imag * c.imag
         v = np.log10(np.maximum(p @ fbt32, np.float32(1e-10)))
         v *= np.float32(10.0)
-        np.maximum(v, v.max(axis=1, keepdims=True) - np.float32(TOP_DB), out=out[s:s + CHUNK])
+        np.maximum(v, v.max(axis=1, keepdims=True) - np.float32(FLOOR_BELOW_PEAK_DB), out=out[s:s + CHUNK])
     return out
 
 
@@ -73,7 +73,7 @@ def logmel_torch(xt, wint, fbtt):
             c = torch.stft(seg, n_fft=WIN, hop_length=HOP, window=wint, center=False, return_complex=True)
             p = torch.view_as_real(c).square().sum(-1)  # (bins, frames)
             v = torch.log10(torch.clamp(p.t() @ fbtt, min=1e-10)).mul_(10.0)
-            torch.maximum(v, v.amax(dim=1, keepdim=True) - TOP_DB, out=out[s:s + v.shape[0]])
+            torch.maximum(v, v.amax(dim=1, keepdim=True) - FLOOR_BELOW_PEAK_DB, out=out[s:s + v.shape[0]])
     return out
 
 

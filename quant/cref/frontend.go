@@ -159,9 +159,9 @@ func FrontEndCHeader(f FrontEnd, prefix string) (string, *FrontEndLayout, error)
 	floatArray(&b, prefix+"_fe_mel", mel)
 	floatArray(&b, prefix+"_fe_mean", f.Stats.Mean)
 	floatArray(&b, prefix+"_fe_inv_std", invStd)
-	topDB := 0.0
+	floorDB := 0.0
 	if c.Log == features.LogDecibel {
-		topDB = c.FloorBelowPeakDB
+		floorDB = c.FloorBelowPeakDB
 	}
 	flag := func(v bool) int {
 		if v {
@@ -172,7 +172,7 @@ func FrontEndCHeader(f FrontEnd, prefix string) (string, *FrontEndLayout, error)
 	fmt.Fprintf(&b, "\nstatic const pipit_fe_config_t %s_fe_config = {\n  %d, %d, %d, %d, %d, %d, %d, %d, %d, %d,\n  %s, %s, %s, %d,\n  %[1]s_fe_win, %[1]s_fe_twiddle, %[1]s_fe_band_start, %[1]s_fe_band_len, %[1]s_fe_mel, %[1]s_fe_mean, %[1]s_fe_inv_std};\n\n",
 		prefix, c.WindowSamples, c.HopSamples, c.FFTSize, (c.FFTSize-c.WindowSamples)/2, c.Bands, f.Frames, f.HopFrames,
 		flag(c.Spectrum == features.SpectrumMagnitude), flag(c.Log == features.LogDecibel), flag(c.PadEnds),
-		cf(c.LogFloor), cf(topDB), cf(1/f.InputScale), f.InputZeroPoint)
+		cf(c.LogFloor), cf(floorDB), cf(1/f.InputScale), f.InputZeroPoint)
 	fmt.Fprintf(&b, "/* Every buffer of one front end at its exact size (RAM). */\ntypedef struct {\n  pipit_fe_t fe;\n  int16_t ring[%d];\n  float work[%d];\n  float logmel[%d];\n  int8_t features[%d];\n} %s_fe_state_t;\n\n",
 		c.WindowSamples, c.FFTSize, c.Bands, c.Bands*f.Frames, prefix)
 	fmt.Fprintf(&b, "/* %s_FE_INIT(&state) binds a %s_fe_state_t to the tables and resets it. */\n#define %s_FE_INIT(s) pipit_fe_init(&(s)->fe, &%s_fe_config, (s)->ring, (s)->work, (s)->logmel, (s)->features)\n\n#endif\n",

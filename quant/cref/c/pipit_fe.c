@@ -155,8 +155,8 @@ static void frame(pipit_fe_t *fe) {
     }
     fe->logmel[mb] = v;
   }
-  if (c->decibel && c->top_db > 0.0f) {
-    const float lo = peak - c->top_db;
+  if (c->decibel && c->floor_below_peak > 0.0f) {
+    const float lo = peak - c->floor_below_peak;
     for (mb = 0; mb < M; mb++)
       if (fe->logmel[mb] < lo) fe->logmel[mb] = lo;
   }

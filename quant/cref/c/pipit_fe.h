@@ -37,7 +37,7 @@ typedef struct {
   int32_t decibel;    /* 1: 10 log10, 0: ln */
   int32_t pad_ends;   /* 1: W/2 zeros before the first sample (and after the last, on flush) */
   float floor;        /* log floor (values below are raised to it) */
-  float top_db;       /* decibel only: clip at (frame peak - top_db); 0: off */
+  float floor_below_peak;       /* decibel only: clip at (frame peak - floor_below_peak); 0: off */
   float inv_scale;    /* 1 / input scale */
   int32_t zero_point; /* input zero point */
   const float *win;            /* (W) window[i] / 32768 */

@@ -2,9 +2,9 @@ package quant
 
 import (
 	"bytes"
+	"errors"
 	"encoding/binary"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"hash/crc32"
 	"os"
@@ -17,9 +17,6 @@ import (
 // JSON length J, J bytes of the Model as JSON, uint32 CRC-32 (IEEE) of
 // every preceding byte. All integers little-endian.
 const qmodelMagic = "PIPITQM1"
-
-// ErrFormat is wrapped by errors about malformed quantised model files.
-var ErrFormat = errors.New("quant: malformed model file")
 
 // MarshalBinary encodes m as a quantised model file.
 func (m *Model) MarshalBinary() ([]byte, error) {
@@ -62,30 +59,37 @@ func ReadModelFile(path string) (*Model, error) {
 
 // ParseModel decodes and validates a quantised model file: every array
 // length must match its layer's shapes, so the engine can run any model
-// this accepts. Errors wrap [ErrFormat] and name the file.
+// this accepts. Errors are a [*FormatError] naming the file and the byte
+// offset (wrapping [ErrFormat], and [ErrUnsupportedVersion] for another
+// version).
 func ParseModel(name string, data []byte) (*Model, error) {
-	bad := func(format string, args ...any) error {
-		return fmt.Errorf("%w: %s: %s", ErrFormat, name, fmt.Sprintf(format, args...))
+	bad := func(off int64, format string, args ...any) error {
+		return &FormatError{Name: name, Offset: off, Reason: fmt.Sprintf(format, args...)}
 	}
 	if len(data) < 20 || string(data[:8]) != qmodelMagic {
-		return nil, bad("not a pipit quantised model")
+		return nil, bad(0, "not a pipit quantised model")
 	}
 	if v := binary.LittleEndian.Uint32(data[8:]); v != ModelVersion {
-		return nil, bad("version %d, this pipit reads %d", v, ModelVersion)
+		return nil, &FormatError{Name: name, Offset: 8, Reason: fmt.Sprintf("version %d, this pipit reads %d", v, ModelVersion), Err: ErrUnsupportedVersion}
 	}
 	if crc32.ChecksumIEEE(data[:len(data)-4]) != binary.LittleEndian.Uint32(data[len(data)-4:]) {
-		return nil, bad("CRC mismatch: the file is damaged")
+		return nil, bad(int64(len(data)-4), "CRC mismatch: the file is damaged")
 	}
 	jl := int64(binary.LittleEndian.Uint32(data[12:]))
 	if 16+jl != int64(len(data)-4) {
-		return nil, bad("JSON length %d does not match the file", jl)
+		return nil, bad(12, "JSON length %d does not match the file", jl)
 	}
 	var m Model
 	if err := json.Unmarshal(data[16:16+jl], &m); err != nil {
-		return nil, bad("%v", err)
+		off := int64(16)
+		var se *json.SyntaxError
+		if errors.As(err, &se) {
+			off += se.Offset
+		}
+		return nil, bad(off, "%v", err)
 	}
 	if err := m.Validate(); err != nil {
-		return nil, bad("%v", err)
+		return nil, bad(16, "%v", err)
 	}
 	return &m, nil
 }

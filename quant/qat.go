@@ -179,7 +179,9 @@ func weightScale(m float64, pow2 bool) float64 {
 }
 
 // Quantize quantises the fine-tuned network with the ranges its FakeQuant
-// layers tracked (the method is recorded as "qat").
+// layers tracked (the method is recorded as "qat"). Like [Calibrate] it
+// checks the worst-case accumulators against int32: an overflow is an
+// error wrapping [ErrOverflow].
 func (q *QAT) Quantize() (*Model, error) {
 	fl, err := Fold(q.Net)
 	if err != nil {
@@ -202,5 +204,11 @@ func (q *QAT) Quantize() (*Model, error) {
 		return nil, err
 	}
 	m := &Model{Version: ModelVersion, Scheme: q.scheme, Method: "qat", Input: q.Net.Input, InputQ: act[0], Classes: q.Net.Output().Size(), Layers: layers}
-	return m, m.Validate()
+	if err := m.Validate(); err != nil {
+		return nil, err
+	}
+	if err := m.CheckOverflow(); err != nil {
+		return nil, err
+	}
+	return m, nil
 }

@@ -2,9 +2,9 @@ package quant
 
 import (
 	"bytes"
-	"errors"
 	"encoding/binary"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"hash/crc32"
 	"os"

@@ -2,8 +2,8 @@ package quant
 
 import (
 	"encoding/binary"
-	"errors"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"hash/crc32"
 	"os"

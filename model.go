@@ -204,11 +204,26 @@ const AllFolds = "all"
 // folds gets the model's (assigned from the model's seed); the corpus's
 // classes are mapped onto the model's.
 func EvaluateFold(m Model, d Data, fold string, rep Reporter) (*Evaluation, error) {
-	info := m.Info()
+	set, err := LoadFold(m.Info(), d, fold, rep)
+	if err != nil {
+		return nil, err
+	}
+	return Evaluate(m, set)
+}
+
+// LoadFold reads the windows of one fold of the corpus d as the model
+// described by info sees them (its front end, window and band
+// statistics): fold is a label, "" for the model's test fold, or
+// [AllFolds].
+func LoadFold(info *datasets.ModelInfo, d Data, fold string, rep Reporter) (*datasets.Set, error) {
 	c, err := openForModel(d, info)
 	if err != nil {
 		return nil, err
 	}
+	return loadFold(c, info, d, fold, rep)
+}
+
+func loadFold(c *datasets.Corpus, info *datasets.ModelInfo, d Data, fold string, rep Reporter) (*datasets.Set, error) {
 	if fold == "" {
 		fold = info.TestFold
 	}
@@ -224,11 +239,7 @@ func EvaluateFold(m Model, d Data, fold string, rep Reporter) (*Evaluation, erro
 		}
 		ids, _ = c.Split(k)
 	}
-	set, err := newLoader(c, d, info.FrontEnd, info.Window, rep).load(fold, ids, false, info.Stats)
-	if err != nil {
-		return nil, err
-	}
-	return Evaluate(m, set)
+	return newLoader(c, d, info.FrontEnd, info.Window, rep).load(fold, ids, false, info.Stats)
 }
 
 // Probabilities returns the softmax class probabilities (n, classes) of

@@ -201,7 +201,7 @@ func (l *Layer) validate(in interface{ Size() int }) error {
 		}
 	}
 	if w, _ := l.worstAccumulator(); w > 1<<31-1 {
-		return fmt.Errorf("worst-case accumulator %d exceeds int32", w)
+		return fmt.Errorf("%w: worst-case accumulator %d exceeds int32", ErrOverflow, w)
 	}
 	return nil
 }

@@ -91,6 +91,9 @@ func Import(blob, scheme []byte) (*Model, error) {
 	if d.Blob.Bytes != len(blob) || d.Blob.CRC32 != fmt.Sprintf("%08x", crc32.ChecksumIEEE(blob)) {
 		return nil, bad("describes a blob of %d bytes with CRC %s, not this one (%d bytes, %08x)", d.Blob.Bytes, d.Blob.CRC32, len(blob), crc32.ChecksumIEEE(blob))
 	}
+	if g := d.Scheme.Granularity; g != PerChannel && g != PerTensor {
+		return nil, bad("weight granularity %q, want %s or %s", g, PerChannel, PerTensor)
+	}
 	if len(d.Layers) == 0 || len(d.Layers) > 4096 {
 		return nil, bad("%d layers", len(d.Layers))
 	}
@@ -100,7 +103,7 @@ func Import(blob, scheme []byte) (*Model, error) {
 	}
 	toShape := func(s [3]int) nn.Shape { return nn.Shape{H: s[0], W: s[1], C: s[2]} }
 	m := &Model{Version: ModelVersion, Method: d.Scheme.Method, Input: toShape(d.Input.Shape), InputQ: d.Input.Q, Meta: d.Model,
-		Scheme: Scheme{Weights: PerChannel, Pow2: d.Scheme.Pow2Scales}}
+		Scheme: Scheme{Weights: d.Scheme.Granularity, Pow2: d.Scheme.Pow2Scales}}
 	m.Classes = toShape(d.Output.Shape).Size()
 	for i, sl := range d.Layers {
 		l := Layer{Op: sl.Op, InShape: toShape(sl.InShape), OutShape: toShape(sl.OutShape), Act: sl.Activation, In: sl.Input, Out: sl.Output,

@@ -187,17 +187,22 @@ func (q *QAT) Quantize() (*Model, error) {
 	if err != nil {
 		return nil, err
 	}
-	if len(fl) != len(q.opFQ) || q.inputFQ == nil || !q.inputFQ.Seen {
+	if len(fl) != len(q.opFQ) || q.inputFQ == nil {
+		return nil, fmt.Errorf("quant: QAT network has not been trained")
+	}
+	lo, hi, seen := q.inputFQ.Range()
+	if !seen {
 		return nil, fmt.Errorf("quant: QAT network has not been trained")
 	}
 	act := make([]QParams, len(fl)+1)
-	act[0] = activationParams(q.inputFQ.Lo, q.inputFQ.Hi, q.scheme.Pow2)
+	act[0] = activationParams(lo, hi, q.scheme.Pow2)
 	for i, fq := range q.opFQ {
 		if fq == nil {
 			act[i+1] = act[i] // pooling keeps its input's parameters
 			continue
 		}
-		act[i+1] = activationParams(fq.Lo, fq.Hi, q.scheme.Pow2)
+		lo, hi, _ := fq.Range()
+		act[i+1] = activationParams(lo, hi, q.scheme.Pow2)
 	}
 	layers, err := quantizeLayers(fl, act, q.scheme)
 	if err != nil {

@@ -62,12 +62,12 @@ func (l *FakeQuant) setup(in Shape) (Shape, error) {
 	l.sz = in.Size()
 	return in, nil
 }
-func (l *FakeQuant) params() []ParamSpec      { return nil }
+func (l *FakeQuant) params() []ParamSpec { return nil }
 func (l *FakeQuant) state() []ParamSpec {
 	return []ParamSpec{{Role: "range", Shape: []int{3}}}
 }
 func (l *FakeQuant) bind(_, _, state [][]float32) { l.rng = state[0] }
-func (l *FakeQuant) plan(int)                 {}
+func (l *FakeQuant) plan(int)                     {}
 
 // forward: x and out are (N, H, W, C).
 func (l *FakeQuant) forward(p *Pass, out, x []float32, n int) {

@@ -19,10 +19,11 @@ type Clip struct {
 	ID    int     // index in Corpus.Clips
 	Path  string  // file path as resolved (relative paths joined to the manifest's folder)
 	Label int     // index into Corpus.Classes
-	Fold  int     // 0-based fold; meaningful when Corpus.HasFolds
+	Fold  int     // fold index into Corpus.FoldLabels; meaningful when Corpus.HasFolds
 	Start float64 // seconds; 0 when the manifest gives no span
 	End   float64 // seconds; 0 means to the end of the file
 	Group string  // source recording: clips sharing a group never straddle folds
+	Line  int     // physical line of the manifest row (1-based, comments and blank lines counted); 0 for folder corpora
 }
 
 // Corpus is a set of labelled clips with their class names.
@@ -32,16 +33,26 @@ type Corpus struct {
 	Clips    []Clip
 	HasFolds bool // folds came from the manifest or AssignFolds
 	Folds    int  // number of folds when HasFolds
+	// FoldLabels[k] is fold k's label as the manifest writes it ("1",
+	// "dev", ...), or "0".."Folds-1" for folds from AssignFolds. Labels
+	// that are all integers are in numeric order, others in string order.
+	FoldLabels []string
 }
+
+// MaxFolds bounds the number of distinct folds a manifest may have.
+const MaxFolds = 1000
 
 // ReadManifest reads a CSV manifest with a header row naming at least the
 // columns path and label, and optionally fold, start, end and the column
 // named by groupColumn (empty: "group" if present). Paths are relative to
 // the manifest's folder unless absolute; extra columns are ignored; lines
-// starting with '#' are comments. Folds in the file are integers from 0;
-// every row must then have one. A clip's group is the group column if
-// given, else its path, so spans cut from one file share a group. Every
-// file must exist; errors name the manifest and the line.
+// starting with '#' are comments. Folds in the file are labels: integers
+// from any start (1..10 as many public corpora number them) or any
+// strings, at most [MaxFolds] of them; every row must then have one (see
+// [Corpus.FoldLabels]). A clip's group is the group column if given, else
+// its path, so spans cut from one file share a group. Every file must
+// exist; errors name the manifest and the physical line of the row
+// (comments and blank lines counted).
 func ReadManifest(path, groupColumn string) (*Corpus, error) {
 	data, err := os.ReadFile(path)
 	if err != nil {
@@ -53,7 +64,7 @@ func ReadManifest(path, groupColumn string) (*Corpus, error) {
 	}
 	for _, cl := range c.Clips {
 		if _, err := os.Stat(cl.Path); err != nil {
-			return nil, &ManifestError{Name: path, Line: cl.ID + 2, Reason: fmt.Sprintf("file %s: %v", cl.Path, errors.Unwrap(err))}
+			return nil, &ManifestError{Name: path, Line: cl.Line, Reason: fmt.Sprintf("file %s: %v", cl.Path, errors.Unwrap(err))}
 		}
 	}
 	return c, nil
@@ -61,8 +72,8 @@ func ReadManifest(path, groupColumn string) (*Corpus, error) {
 
 // ParseManifest parses manifest bytes (see [ReadManifest]) without touching
 // the file system; base is the folder relative paths are joined to. Line
-// numbers in errors count the header as line 1 and assume one record per
-// line.
+// numbers in errors are physical lines of data, counting comments, blank
+// lines and the lines of quoted fields that span several.
 func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus, error) {
 	r := csv.NewReader(bytes.NewReader(data))
 	r.Comment = '#'
@@ -73,15 +84,16 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 		return nil, &ManifestError{Name: name, Line: 1, Reason: "empty manifest"}
 	}
 	if err != nil {
-		return nil, &ManifestError{Name: name, Line: 1, Reason: err.Error()}
+		return nil, &ManifestError{Name: name, Line: csvLine(err, 1), Reason: err.Error()}
 	}
+	headerLine, _ := r.FieldPos(0)
 	col := map[string]int{}
 	for i, h := range header {
 		col[strings.ToLower(strings.TrimSpace(h))] = i
 	}
 	for _, need := range []string{"path", "label"} {
 		if _, ok := col[need]; !ok {
-			return nil, &ManifestError{Name: name, Line: 1, Reason: fmt.Sprintf("header %q has no %q column", strings.Join(header, ","), need)}
+			return nil, &ManifestError{Name: name, Line: headerLine, Reason: fmt.Sprintf("header %q has no %q column", strings.Join(header, ","), need)}
 		}
 	}
 	if groupColumn == "" {
@@ -89,27 +101,26 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 			groupColumn = "group"
 		}
 	} else if _, ok := col[strings.ToLower(groupColumn)]; !ok {
-		return nil, &ManifestError{Name: name, Line: 1, Reason: fmt.Sprintf("no group column %q", groupColumn)}
+		return nil, &ManifestError{Name: name, Line: headerLine, Reason: fmt.Sprintf("no group column %q", groupColumn)}
 	}
 	groupColumn = strings.ToLower(groupColumn)
 	type row struct {
 		line               int
 		path, label, group string
-		fold               int
-		hasFold            bool
+		fold               string
 		start, end         float64
 	}
 	var rows []row
-	line := 1
+	line := headerLine
 	for {
 		rec, err := r.Read()
 		if err == io.EOF {
 			break
 		}
-		line++
 		if err != nil {
-			return nil, &ManifestError{Name: name, Line: line, Reason: err.Error()}
+			return nil, &ManifestError{Name: name, Line: csvLine(err, line+1), Reason: err.Error()}
 		}
+		line, _ = r.FieldPos(0)
 		get := func(k string) string {
 			if i, ok := col[k]; ok && i < len(rec) {
 				return strings.TrimSpace(rec[i])
@@ -120,13 +131,7 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 		if rw.path == "" || rw.label == "" {
 			return nil, &ManifestError{Name: name, Line: line, Reason: "empty path or label"}
 		}
-		if f := get("fold"); f != "" {
-			n, err := strconv.Atoi(f)
-			if err != nil || n < 0 || n > 1000 {
-				return nil, &ManifestError{Name: name, Line: line, Reason: fmt.Sprintf("fold %q is not an integer in 0..1000", f)}
-			}
-			rw.fold, rw.hasFold = n, true
-		}
+		rw.fold = get("fold")
 		for _, k := range []string{"start", "end"} {
 			if v := get(k); v != "" {
 				x, err := strconv.ParseFloat(v, 64)
@@ -160,17 +165,31 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 		return nil, &ManifestError{Name: name, Line: line, Reason: "no clips"}
 	}
 	withFold := 0
+	foldSeen := map[string]bool{}
+	var foldLabels []string
 	for _, rw := range rows {
-		if rw.hasFold {
+		if rw.fold != "" {
 			withFold++
+			if !foldSeen[rw.fold] {
+				if len(foldLabels) == MaxFolds {
+					return nil, &ManifestError{Name: name, Line: rw.line, Reason: fmt.Sprintf("more than %d distinct folds", MaxFolds)}
+				}
+				foldSeen[rw.fold] = true
+				foldLabels = append(foldLabels, rw.fold)
+			}
 		}
 	}
 	if withFold != 0 && withFold != len(rows) {
 		for _, rw := range rows {
-			if !rw.hasFold {
+			if rw.fold == "" {
 				return nil, &ManifestError{Name: name, Line: rw.line, Reason: "no fold, while other rows have one"}
 			}
 		}
+	}
+	sortFoldLabels(foldLabels)
+	foldIndex := map[string]int{}
+	for k, l := range foldLabels {
+		foldIndex[l] = k
 	}
 	labels := map[string]bool{}
 	for _, rw := range rows {
@@ -185,13 +204,11 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 	for i, l := range c.Classes {
 		index[l] = i
 	}
-	maxFold := -1
 	for i, rw := range rows {
-		c.Clips = append(c.Clips, Clip{ID: i, Path: rw.path, Label: index[rw.label], Fold: rw.fold, Start: rw.start, End: rw.end, Group: rw.group})
-		maxFold = max(maxFold, rw.fold)
+		c.Clips = append(c.Clips, Clip{ID: i, Path: rw.path, Label: index[rw.label], Fold: foldIndex[rw.fold], Start: rw.start, End: rw.end, Group: rw.group, Line: rw.line})
 	}
 	if withFold > 0 {
-		c.HasFolds, c.Folds = true, maxFold+1
+		c.HasFolds, c.Folds, c.FoldLabels = true, len(foldLabels), foldLabels
 		if err := c.checkFolds(); err != nil {
 			return nil, fmt.Errorf("datasets: %s: %w", name, err)
 		}
@@ -206,20 +223,44 @@ func (c *Corpus) checkFolds() error {
 	groupFold := map[string]int{}
 	for _, cl := range c.Clips {
 		if cl.Fold < 0 || cl.Fold >= c.Folds {
-			return corpusErr("clip %s has fold %d outside 0..%d", cl.Path, cl.Fold, c.Folds-1)
+			return corpusErr("clip %s has fold index %d outside 0..%d", cl.Path, cl.Fold, c.Folds-1)
 		}
 		count[cl.Fold]++
 		if f, ok := groupFold[cl.Group]; ok && f != cl.Fold {
-			return corpusErr("group %q is in folds %d and %d: clips from one source recording must share a fold (leakage)", cl.Group, f, cl.Fold)
+			return corpusErr("group %q is in folds %s and %s: clips from one source recording must share a fold (leakage)", cl.Group, c.FoldLabel(f), c.FoldLabel(cl.Fold))
 		}
 		groupFold[cl.Group] = cl.Fold
 	}
 	for f, n := range count {
 		if n == 0 {
-			return corpusErr("fold %d holds no clips (folds must be numbered 0..%d without gaps)", f, c.Folds-1)
+			return corpusErr("fold %s holds no clips", c.FoldLabel(f))
 		}
 	}
 	return nil
+}
+
+// csvLine returns the physical line of a csv error, or def.
+func csvLine(err error, def int) int {
+	var pe *csv.ParseError
+	if errors.As(err, &pe) && pe.Line > 0 {
+		return pe.Line
+	}
+	return def
+}
+
+// sortFoldLabels orders labels numerically when every one is an integer,
+// else as strings.
+func sortFoldLabels(labels []string) {
+	nums := make(map[string]int64, len(labels))
+	for _, l := range labels {
+		n, err := strconv.ParseInt(l, 10, 64)
+		if err != nil {
+			sort.Strings(labels)
+			return
+		}
+		nums[l] = n
+	}
+	sort.Slice(labels, func(i, j int) bool { return nums[labels[i]] < nums[labels[j]] })
 }
 
 // ReadFolder reads a corpus laid out as one sub-folder per class holding

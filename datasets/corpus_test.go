@@ -91,9 +91,7 @@ func TestManifestErrors(t *testing.T) {
 	cases := map[string]string{
 		"no label column": "path,fold\na.wav,0\n",
 		"empty":           "",
-		"bad fold":        "path,label,fold\na.wav,x,zero\n",
 		"partial folds":   "path,label,fold\na.wav,x,0\nb.wav,y,\n",
-		"fold gap":        "path,label,fold\na.wav,x,0\nb.wav,y,2\n",
 		"bad span":        "path,label,start,end\na.wav,x,2,1\n",
 		"no rows":         "path,label\n",
 		"missing group":   "path,label\na.wav,x\n",
@@ -109,7 +107,7 @@ func TestManifestErrors(t *testing.T) {
 		}
 	}
 	var me *ManifestError
-	_, err := ParseManifest("m.csv", []byte("path,label,fold\na.wav,x,0\nb.wav,y,-3\n"), "/", "")
+	_, err := ParseManifest("m.csv", []byte("path,label,start,end\na.wav,x,0,1\nb.wav,y,3,-3\n"), "/", "")
 	if !errors.As(err, &me) || me.Line != 3 {
 		t.Errorf("error %v should point at line 3", err)
 	}
@@ -161,5 +159,71 @@ func TestWindowArithmetic(t *testing.T) {
 	}
 	if x := padClip([]float32{1, 2}, 4, PadZeros); fmt.Sprint(x) != "[1 2 0 0]" {
 		t.Errorf("zero padding %v", x)
+	}
+}
+
+// Public corpora number folds 1..5 or 1..10, or name them; the labels are
+// kept and ordered as numbers when they all are (issue #11).
+func TestManifestFoldLabels(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("path,label,fold\n")
+	for f := 1; f <= 10; f++ {
+		fmt.Fprintf(&b, "a%d.wav,saw,%d\nb%d.wav,bird,%d\n", f, f, f, f)
+	}
+	c, err := ParseManifest("ten.csv", []byte(b.String()), "/", "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := strings.Join(c.FoldLabels, " "); c.Folds != 10 || got != "1 2 3 4 5 6 7 8 9 10" {
+		t.Fatalf("folds %d, labels %q; want 10 labels 1..10 in numeric order", c.Folds, got)
+	}
+	k, err := c.FoldIndex("10")
+	if err != nil || k != 9 {
+		t.Fatalf("FoldIndex(10) = %d, %v; want 9", k, err)
+	}
+	test, _ := c.Split(k)
+	if len(test) != 2 || c.Clips[test[0]].Path != "/a10.wav" {
+		t.Errorf("fold 10 holds %v", test)
+	}
+	if _, err := c.FoldIndex("0"); !errors.Is(err, ErrCorpus) || !strings.Contains(err.Error(), "1, 2, 3") {
+		t.Errorf("FoldIndex(0) error %v, want ErrCorpus listing the labels", err)
+	}
+	named, err := ParseManifest("named.csv", []byte("path,label,fold\na.wav,x,train\nb.wav,y,dev\nc.wav,x,eval\n"), "/", "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := strings.Join(named.FoldLabels, " "); got != "dev eval train" {
+		t.Errorf("string labels %q, want dev eval train", got)
+	}
+	if k, _ := named.FoldIndex("eval"); named.Clips[2].Fold != k {
+		t.Errorf("clip c.wav in fold %d, eval is %d", named.Clips[2].Fold, k)
+	}
+	train, val, tst := named.Partition(2, 0)
+	if fmt.Sprint(train, val, tst) != "[2] [1] [0]" {
+		t.Errorf("Partition(train, dev) = %v %v %v", train, val, tst)
+	}
+}
+
+// Errors name the physical line: comments, blank lines and multi-line
+// quoted fields count (issue #11: a bad row on line 7 was "line 4").
+func TestManifestErrorLines(t *testing.T) {
+	m := "# timber-yard clips\npath,label,start,end\n\n# first session\na.wav,saw,0,1\n\nb.wav,bird,5,2\n"
+	var me *ManifestError
+	if _, err := ParseManifest("m.csv", []byte(m), "/", ""); !errors.As(err, &me) || me.Line != 7 {
+		t.Fatalf("error %v, want one at line 7", err)
+	}
+	if _, err := ParseManifest("m.csv", []byte("# c\n\npath,fold\na.wav,1\n"), "/", ""); !errors.As(err, &me) || me.Line != 3 {
+		t.Errorf("header error %v, want line 3", err)
+	}
+	quoted := "path,label,start,end\n\"a\nb.wav\",saw,0,1\n,bird,,\n"
+	if _, err := ParseManifest("m.csv", []byte(quoted), "/", ""); !errors.As(err, &me) || me.Line != 4 {
+		t.Errorf("after a two-line field: error %v, want line 4", err)
+	}
+	dir := t.TempDir()
+	os.WriteFile(filepath.Join(dir, "here.wav"), nil, 0o644)
+	p := filepath.Join(dir, "m.csv")
+	os.WriteFile(p, []byte("path,label\n# note\nhere.wav,x\n\nnothere.wav,y\n"), 0o644)
+	if _, err := ReadManifest(p, ""); !errors.As(err, &me) || me.Line != 5 || !strings.Contains(err.Error(), "nothere.wav") {
+		t.Errorf("missing file: error %v, want line 5 naming nothere.wav", err)
 	}
 }

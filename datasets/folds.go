@@ -3,6 +3,8 @@ package datasets
 import (
 	"hash/fnv"
 	"sort"
+	"strconv"
+	"strings"
 )
 
 // AssignFolds puts every clip into one of k folds, deterministically from
@@ -68,10 +70,37 @@ func (c *Corpus) AssignFolds(k int, seed uint64) error {
 		}
 	}
 	c.HasFolds, c.Folds = true, k
+	c.FoldLabels = make([]string, k)
+	for f := range c.FoldLabels {
+		c.FoldLabels[f] = strconv.Itoa(f)
+	}
 	return c.checkFolds()
 }
 
-// Split returns the IDs of clips in the given fold and of all others.
+// FoldLabel returns the label of fold index k (see [Corpus.FoldLabels]),
+// or k as a number for a corpus without labels.
+func (c *Corpus) FoldLabel(k int) string {
+	if k >= 0 && k < len(c.FoldLabels) {
+		return c.FoldLabels[k]
+	}
+	return strconv.Itoa(k)
+}
+
+// FoldIndex returns the index of the fold labelled label. An unknown
+// label is an error wrapping [ErrCorpus] that lists the corpus's labels.
+func (c *Corpus) FoldIndex(label string) (int, error) {
+	if !c.HasFolds {
+		return 0, corpusErr("%s has no folds", c.Source)
+	}
+	for k, l := range c.FoldLabels {
+		if l == label {
+			return k, nil
+		}
+	}
+	return 0, corpusErr("%s has no fold %q (its folds: %s)", c.Source, label, strings.Join(c.FoldLabels, ", "))
+}
+
+// Split returns the IDs of clips in fold index fold and of all others.
 func (c *Corpus) Split(fold int) (in, out []int) {
 	for _, cl := range c.Clips {
 		if cl.Fold == fold {
@@ -81,4 +110,20 @@ func (c *Corpus) Split(fold int) (in, out []int) {
 		}
 	}
 	return in, out
+}
+
+// Partition returns the IDs of clips in fold index test, in fold index
+// val and in every other fold (the training folds), each in corpus order.
+func (c *Corpus) Partition(test, val int) (train, valIDs, testIDs []int) {
+	for _, cl := range c.Clips {
+		switch cl.Fold {
+		case test:
+			testIDs = append(testIDs, cl.ID)
+		case val:
+			valIDs = append(valIDs, cl.ID)
+		default:
+			train = append(train, cl.ID)
+		}
+	}
+	return train, valIDs, testIDs
 }

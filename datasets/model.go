@@ -7,10 +7,11 @@ import (
 	"github.com/pipit-audio/pipit/features"
 )
 
-// ModelInfoVersion is the version of [ModelInfo]'s JSON form. Version 2
-// names the front end's per-frame floor "floor_below_peak_db" and its end
-// padding "pad_ends"; version 1 files are refused.
-const ModelInfoVersion = 2
+// ModelInfoVersion is the version of [ModelInfo]'s JSON form. Version 3
+// records the test and validation folds by their labels (strings);
+// version 2 named the front end's per-frame floor "floor_below_peak_db"
+// and its end padding "pad_ends". Older versions are refused.
+const ModelInfoVersion = 3
 
 // ModelInfo is what a trained model file records besides the network, so
 // that evaluation, quantisation and a device reproduce the inputs exactly.
@@ -22,8 +23,8 @@ type ModelInfo struct {
 	FrontEnd features.Config     `json:"front_end"`
 	Window   WindowConfig        `json:"window"`
 	Stats    *features.BandStats `json:"band_stats"`
-	TestFold int                 `json:"test_fold"` // -1: none held out
-	ValFold  int                 `json:"val_fold"`
+	TestFold string              `json:"test_fold"` // fold label (see Corpus.FoldLabels)
+	ValFold  string              `json:"val_fold"`  // fold label
 	Folds    int                 `json:"folds"`
 	FoldSeed uint64              `json:"fold_seed"` // seed used when folds were assigned (corpora without folds)
 }

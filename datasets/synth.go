@@ -405,7 +405,7 @@ func Synthesize(dir string, cfg SynthConfig, progress func(done, total int)) (*C
 		cw.Write([]string{"path", "label", "fold", "group"})
 		for _, cl := range c.Clips {
 			rel, _ := filepath.Rel(dir, cl.Path)
-			cw.Write([]string{filepath.ToSlash(rel), c.Classes[cl.Label], fmt.Sprint(cl.Fold), cl.Group})
+			cw.Write([]string{filepath.ToSlash(rel), c.Classes[cl.Label], c.FoldLabel(cl.Fold), cl.Group})
 		}
 		cw.Flush()
 		return cw.Error()

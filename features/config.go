@@ -79,6 +79,20 @@ func DefaultConfig() Config {
 	}
 }
 
+// Complete returns c with the fields whose default depends on others
+// filled in: an FFTSize of 0 becomes the window length and an FMaxHz of 0
+// the Nyquist frequency, SampleRateHz/2. It does not validate; call
+// [Config.Validate] on the result.
+func (c Config) Complete() Config {
+	if c.FFTSize == 0 {
+		c.FFTSize = c.WindowSamples
+	}
+	if c.FMaxHz == 0 {
+		c.FMaxHz = float64(c.SampleRateHz) / 2
+	}
+	return c
+}
+
 // Validate reports the first problem with c as an error wrapping
 // [ErrBadConfig], or nil.
 func (c Config) Validate() error {

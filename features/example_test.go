@@ -107,3 +107,14 @@ func ExampleMeter() {
 	// Output:
 	// LAeq -23.0 dB re full scale, LAFmax -23.0 dB, SEL -20.0 dB
 }
+
+// A front end at 8 kHz with a 256-sample window: Complete fills the FFT
+// size and the top band edge that follow from them.
+func ExampleConfig_Complete() {
+	c := features.DefaultConfig()
+	c.SampleRateHz, c.WindowSamples, c.HopSamples = 8000, 256, 128
+	c.FFTSize, c.FMaxHz = 0, 0
+	c = c.Complete()
+	fmt.Println(c.FFTSize, c.FMaxHz, c.Validate())
+	// Output: 256 4000 <nil>
+}

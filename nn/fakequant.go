@@ -17,14 +17,26 @@ import (
 // applies the same quantisation with the tracked range. Before QParams is
 // set the layer is the identity (nn itself knows no quantisation scheme;
 // package quant supplies it).
+//
+// The tracked range is state of the network (Params.State, role
+// "range"), like batch-norm running statistics: [Fit] restores the best
+// epoch's range together with its weights, and checkpoints carry it.
 type FakeQuant struct {
 	Decay      float64
-	Lo, Hi     float64 // tracked range; valid once Seen
-	Seen       bool
 	QMin, QMax int32
 	QParams    func(lo, hi float64) (scale float64, zeroPoint int32)
 	sz         int
-	lo, hi     float32 // representable range of the current pass, for backward
+	rng        []float32 // (3): lo, hi, seen (1 once a training pass set the range); view into Params.State
+	lo, hi     float32   // representable range of the current pass, for backward
+}
+
+// Range returns the tracked range [lo, hi] and whether a training pass has
+// set it (before that the layer is the identity).
+func (l *FakeQuant) Range() (lo, hi float64, seen bool) {
+	if l.rng == nil {
+		return 0, 0, false
+	}
+	return float64(l.rng[0]), float64(l.rng[1]), l.rng[2] != 0
 }
 
 // NewFakeQuant returns a fake-quantisation layer for int8 (−128..127).
@@ -50,10 +62,12 @@ func (l *FakeQuant) setup(in Shape) (Shape, error) {
 	l.sz = in.Size()
 	return in, nil
 }
-func (l *FakeQuant) params() []ParamSpec      { return nil }
-func (l *FakeQuant) state() []ParamSpec       { return nil }
-func (l *FakeQuant) bind(_, _, _ [][]float32) {}
-func (l *FakeQuant) plan(int)                 {}
+func (l *FakeQuant) params() []ParamSpec { return nil }
+func (l *FakeQuant) state() []ParamSpec {
+	return []ParamSpec{{Role: "range", Shape: []int{3}}}
+}
+func (l *FakeQuant) bind(_, _, state [][]float32) { l.rng = state[0] }
+func (l *FakeQuant) plan(int)                     {}
 
 // forward: x and out are (N, H, W, C).
 func (l *FakeQuant) forward(p *Pass, out, x []float32, n int) {
@@ -63,19 +77,20 @@ func (l *FakeQuant) forward(p *Pass, out, x []float32, n int) {
 		for _, v := range x {
 			lo, hi = math.Min(lo, float64(v)), math.Max(hi, float64(v))
 		}
-		if !l.Seen {
-			l.Lo, l.Hi, l.Seen = lo, hi, true
+		if l.rng[2] == 0 {
+			l.rng[0], l.rng[1], l.rng[2] = float32(lo), float32(hi), 1
 		} else {
-			l.Lo = l.Decay*l.Lo + (1-l.Decay)*lo
-			l.Hi = l.Decay*l.Hi + (1-l.Decay)*hi
+			l.rng[0] = float32(l.Decay*float64(l.rng[0]) + (1-l.Decay)*lo)
+			l.rng[1] = float32(l.Decay*float64(l.rng[1]) + (1-l.Decay)*hi)
 		}
 	}
-	if l.QParams == nil || !l.Seen {
+	rlo, rhi, seen := l.Range()
+	if l.QParams == nil || !seen {
 		copy(out, x)
 		l.lo, l.hi = float32(math.Inf(-1)), float32(math.Inf(1))
 		return
 	}
-	scale, zp := l.QParams(l.Lo, l.Hi)
+	scale, zp := l.QParams(rlo, rhi)
 	inv := 1 / scale
 	l.lo, l.hi = float32(scale*float64(l.QMin-zp)), float32(scale*float64(l.QMax-zp))
 	for i, v := range x {

@@ -177,16 +177,57 @@ func TestFakeQuant(t *testing.T) {
 			t.Errorf("out[%d] = %g, want %g", i, out[i], want)
 		}
 	}
-	if l.Lo != float64(float32(-0.74)) || l.Hi != 100 {
-		t.Errorf("first range [%g, %g], want the batch's", l.Lo, l.Hi)
+	if lo, hi, _ := l.Range(); lo != float64(float32(-0.74)) || hi != 100 {
+		t.Errorf("first range [%g, %g], want the batch's", lo, hi)
 	}
-	net.Forward([]float32{0, 0, 0}, 1, true, nil)               // EMA: 0.5·old + 0.5·0
-	if math.Abs(l.Lo+0.37) > 1e-6 || math.Abs(l.Hi-50) > 1e-6 { // float32 inputs: within 1e-6
-		t.Errorf("EMA range [%g, %g], want [-0.37, 50]", l.Lo, l.Hi)
+	net.Forward([]float32{0, 0, 0}, 1, true, nil)                                   // EMA: 0.5·old + 0.5·0
+	if lo, hi, _ := l.Range(); math.Abs(lo+0.37) > 1e-6 || math.Abs(hi-50) > 1e-6 { // float32 state: within 1e-6
+		t.Errorf("EMA range [%g, %g], want [-0.37, 50]", lo, hi)
 	}
 	dx := make([]float32, 3)
 	l.backward(&net.pass, dx, []float32{1, 1, 1}, []float32{0.3, -0.74, 100}, nil, 1)
 	if dx[0] != 1 || dx[1] != 1 || dx[2] != 0 {
 		t.Errorf("straight-through gradient %v, want [1 1 0]", dx)
+	}
+}
+
+// The fake-quant range is network state, so Fit's restore of the best
+// epoch (a copy of Params.State) and checkpoints carry it with the weights
+// (issue #11: QAT paired the best epoch's weights with the last epoch's
+// ranges, and checkpoints dropped them).
+func TestFakeQuantRangeIsNetworkState(t *testing.T) {
+	fq := NewFakeQuant(0.5)
+	net, err := New(Shape{1, 1, 4}, []Layer{fq, NewDense(2)}, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer net.Close()
+	net.Forward([]float32{-1, 0, 1, 2}, 1, true, nil)
+	best := append([]float32(nil), net.Params.State...)
+	lo0, hi0, _ := fq.Range()
+	net.Forward([]float32{-8, 0, 1, 9}, 1, true, nil) // a later epoch moves the range
+	if lo, hi, _ := fq.Range(); lo == lo0 || hi == hi0 {
+		t.Fatalf("range [%g, %g] did not move", lo, hi)
+	}
+	copy(net.Params.State, best) // what Fit does with the best epoch
+	if lo, hi, seen := fq.Range(); lo != lo0 || hi != hi0 || !seen {
+		t.Errorf("after restoring the best state: range [%g, %g] (seen %v), want [%g, %g]", lo, hi, seen, lo0, hi0)
+	}
+	tr, err := NewTrainer(net, &SoftmaxCrossEntropy{Classes: 2}, OptimizerConfig{Kind: OptAdam}, Schedule{Base: 1e-3}, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := tr.MarshalCheckpoint(nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ck, err := ParseCheckpoint("fq.pnet", b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ck.Trainer.Net.Close()
+	back := ck.Trainer.Net.Layers[0].(*FakeQuant)
+	if lo, hi, seen := back.Range(); lo != lo0 || hi != hi0 || !seen {
+		t.Errorf("checkpoint round trip: range [%g, %g] (seen %v), want [%g, %g]", lo, hi, seen, lo0, hi0)
 	}
 }

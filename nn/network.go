@@ -22,6 +22,7 @@ type Network struct {
 	grads   [][]float32 // same shapes, gradients of the outputs
 	exec    *executor
 	pass    Pass
+	closed  bool // Close was called
 }
 
 // New builds a network for per-sample input shape in from layers, and
@@ -152,6 +153,7 @@ func (n *Network) Output() Shape { return n.Shapes[len(n.Shapes)-1] }
 // batch samples. It is the only method that allocates; Forward and
 // Backward call it when given a larger batch.
 func (n *Network) Plan(batch int) {
+	n.checkOpen("Plan")
 	if batch <= n.planned {
 		return
 	}
@@ -169,8 +171,10 @@ func (n *Network) Plan(batch int) {
 // returns the output (N, Output().Size()), a view that the next call
 // overwrites. train selects batch statistics and dropout; rng supplies
 // dropout masks (it may be nil when train is false or there is no
-// dropout). It panics if len(x) is not batch·Input.Size().
+// dropout). It panics if len(x) is not batch·Input.Size() or the network
+// has been closed.
 func (n *Network) Forward(x []float32, batch int, train bool, rng *rand.Rand) []float32 {
+	n.checkOpen("Forward")
 	if len(x) != batch*n.Input.Size() {
 		panic(fmt.Sprintf("nn: Network.Forward: len(x) = %d, want %d·%d", len(x), batch, n.Input.Size()))
 	}
@@ -189,7 +193,9 @@ func (n *Network) Forward(x []float32, batch int, train bool, rng *rand.Rand) []
 // with respect to the last Forward's output, back through the network,
 // accumulating parameter gradients into Params.Grad (call
 // Params.ZeroGrad first). It does not compute the gradient of the input.
+// It panics if the network has been closed.
 func (n *Network) Backward(x, dout []float32, batch int) {
+	n.checkOpen("Backward")
 	last := len(n.Layers) - 1
 	copy(n.grads[last][:batch*n.Shapes[last].Size()], dout)
 	for i := last; i >= 0; i-- {
@@ -225,6 +231,18 @@ func (n *Network) Spec() string {
 	return b.String()
 }
 
-// Close stops the network's worker goroutines; the network must not be
-// used afterwards.
-func (n *Network) Close() { n.exec.close() }
+// Close stops the network's worker goroutines. Running the network
+// afterwards (Plan, Forward, Backward and what calls them) panics with a
+// message saying so; closing twice is harmless.
+func (n *Network) Close() {
+	n.closed = true
+	n.exec.close()
+}
+
+// checkOpen panics when the network has been closed: its workers are gone
+// and a pass would wait for them for ever.
+func (n *Network) checkOpen(method string) {
+	if n.closed {
+		panic("nn: Network." + method + " called after Close: the network's workers are stopped; build or load a new network")
+	}
+}

@@ -48,8 +48,10 @@ const (
 
 var sectionNames = map[uint32]string{sectionWeight: "weights", sectionBias: "bias", sectionMult: "multiplier", sectionShift: "shift"}
 
-// SchemeVersion is the version of the scheme description.
-const SchemeVersion = 1
+// SchemeVersion is the version of the scheme description. Version 2 gives
+// the weight granularity as a field of its own (quantisation.weight_granularity);
+// version 1 stated it only inside the prose of quantisation.weights.
+const SchemeVersion = 2
 
 // SectionRef locates one blob section of a layer.
 type SectionRef struct {
@@ -116,7 +118,8 @@ type BlobInfo struct {
 
 // SchemeInfo states the quantisation scheme so a runtime never guesses.
 type SchemeInfo struct {
-	Weights        string `json:"weights"` // per-channel or per-tensor, symmetric int8, zero point 0, range [-127, 127]
+	Granularity    string `json:"weight_granularity"` // PerChannel or PerTensor: what a runtime reads
+	Weights        string `json:"weights"`            // the same in words: granularity, symmetric int8, zero point 0, range [-127, 127]
 	Pow2Scales     bool   `json:"pow2_scales"`
 	Activations    string `json:"activations"` // "int8 affine per tensor"
 	Bias           string `json:"bias"`
@@ -207,7 +210,7 @@ func Export(m *Model) (blob []byte, scheme *SchemeDoc, err error) {
 
 	doc := &SchemeDoc{Format: "pipit-scheme", Version: SchemeVersion, Model: m.Meta,
 		Blob: BlobInfo{Version: BlobVersion, Bytes: total, CRC32: fmt.Sprintf("%08x", crc32.ChecksumIEEE(blob))},
-		Scheme: SchemeInfo{Weights: m.Scheme.Weights + " symmetric int8, zero point 0, range [-127, 127]", Pow2Scales: m.Scheme.Pow2,
+		Scheme: SchemeInfo{Granularity: m.Scheme.Weights, Weights: m.Scheme.Weights + " symmetric int8, zero point 0, range [-127, 127]", Pow2Scales: m.Scheme.Pow2,
 			Activations:    "int8 affine per tensor: real = scale·(q − zero_point), q in [-128, 127]",
 			Bias:           "int32 per output channel at scale input_scale·weight_scale[c], zero point 0",
 			Requantisation: "acc = bias[c] + Σ (x − x_zp)·w; h = floor((acc·multiplier[c] + 2^30) / 2^31); y = h / 2^shift[c] + y_zp (shift < 0: acc·2^−shift saturated to int32 first, then h, no division); clamp to [clamp_lo, clamp_hi] (Jacob et al. 2018, eqs. 5–6)",

@@ -18,9 +18,6 @@ import (
 // every preceding byte. All integers little-endian.
 const qmodelMagic = "PIPITQM1"
 
-// ErrFormat is wrapped by errors about malformed quantised model files.
-var ErrFormat = errors.New("quant: malformed model file")
-
 // MarshalBinary encodes m as a quantised model file.
 func (m *Model) MarshalBinary() ([]byte, error) {
 	j, err := json.Marshal(m)
@@ -62,30 +59,37 @@ func ReadModelFile(path string) (*Model, error) {
 
 // ParseModel decodes and validates a quantised model file: every array
 // length must match its layer's shapes, so the engine can run any model
-// this accepts. Errors wrap [ErrFormat] and name the file.
+// this accepts. Errors are a [*FormatError] naming the file and the byte
+// offset (wrapping [ErrFormat], and [ErrUnsupportedVersion] for another
+// version).
 func ParseModel(name string, data []byte) (*Model, error) {
-	bad := func(format string, args ...any) error {
-		return fmt.Errorf("%w: %s: %s", ErrFormat, name, fmt.Sprintf(format, args...))
+	bad := func(off int64, format string, args ...any) error {
+		return &FormatError{Name: name, Offset: off, Reason: fmt.Sprintf(format, args...)}
 	}
 	if len(data) < 20 || string(data[:8]) != qmodelMagic {
-		return nil, bad("not a pipit quantised model")
+		return nil, bad(0, "not a pipit quantised model")
 	}
 	if v := binary.LittleEndian.Uint32(data[8:]); v != ModelVersion {
-		return nil, bad("version %d, this pipit reads %d", v, ModelVersion)
+		return nil, &FormatError{Name: name, Offset: 8, Reason: fmt.Sprintf("version %d, this pipit reads %d", v, ModelVersion), Err: ErrUnsupportedVersion}
 	}
 	if crc32.ChecksumIEEE(data[:len(data)-4]) != binary.LittleEndian.Uint32(data[len(data)-4:]) {
-		return nil, bad("CRC mismatch: the file is damaged")
+		return nil, bad(int64(len(data)-4), "CRC mismatch: the file is damaged")
 	}
 	jl := int64(binary.LittleEndian.Uint32(data[12:]))
 	if 16+jl != int64(len(data)-4) {
-		return nil, bad("JSON length %d does not match the file", jl)
+		return nil, bad(12, "JSON length %d does not match the file", jl)
 	}
 	var m Model
 	if err := json.Unmarshal(data[16:16+jl], &m); err != nil {
-		return nil, bad("%v", err)
+		off := int64(16)
+		var se *json.SyntaxError
+		if errors.As(err, &se) {
+			off += se.Offset
+		}
+		return nil, bad(off, "%v", err)
 	}
 	if err := m.Validate(); err != nil {
-		return nil, bad("%v", err)
+		return nil, bad(16, "%v", err)
 	}
 	return &m, nil
 }
@@ -197,7 +201,7 @@ func (l *Layer) validate(in interface{ Size() int }) error {
 		}
 	}
 	if w, _ := l.worstAccumulator(); w > 1<<31-1 {
-		return fmt.Errorf("worst-case accumulator %d exceeds int32", w)
+		return fmt.Errorf("%w: worst-case accumulator %d exceeds int32", ErrOverflow, w)
 	}
 	return nil
 }

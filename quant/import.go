@@ -3,6 +3,7 @@ package quant
 import (
 	"encoding/binary"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"hash/crc32"
 	"os"
@@ -29,32 +30,32 @@ type blobSection struct{ kind, layer, off, length uint32 }
 
 // parseBlob checks the blob's header, CRC and section table.
 func parseBlob(b []byte) ([]blobSection, error) {
-	bad := func(format string, args ...any) error {
-		return fmt.Errorf("%w: blob: %s", ErrFormat, fmt.Sprintf(format, args...))
+	bad := func(off int64, format string, args ...any) error {
+		return &FormatError{Name: "blob", Offset: off, Reason: fmt.Sprintf(format, args...)}
 	}
 	le := binary.LittleEndian
 	if len(b) < blobHeader || string(b[:8]) != blobMagic {
-		return nil, bad("not a pipit blob (%d bytes)", len(b))
+		return nil, bad(0, "not a pipit blob (%d bytes)", len(b))
 	}
 	if v := le.Uint32(b[8:]); v != BlobVersion {
-		return nil, bad("version %d, this pipit reads %d", v, BlobVersion)
+		return nil, &FormatError{Name: "blob", Offset: 8, Reason: fmt.Sprintf("version %d, this pipit reads %d", v, BlobVersion), Err: ErrUnsupportedVersion}
 	}
 	if n := le.Uint32(b[12:]); int64(n) != int64(len(b)) {
-		return nil, bad("header says %d bytes, file has %d (truncated or padded)", n, len(b))
+		return nil, bad(12, "header says %d bytes, file has %d (truncated or padded)", n, len(b))
 	}
 	if got, want := crc32.ChecksumIEEE(b[20:]), le.Uint32(b[16:]); got != want {
-		return nil, bad("CRC mismatch (stored %08x, computed %08x): the blob is damaged", want, got)
+		return nil, bad(16, "CRC mismatch (stored %08x, computed %08x): the blob is damaged", want, got)
 	}
 	ns := int64(le.Uint32(b[20:]))
 	if blobHeader+16*ns > int64(len(b)) {
-		return nil, bad("section table of %d entries runs past the end", ns)
+		return nil, bad(20, "section table of %d entries runs past the end", ns)
 	}
 	secs := make([]blobSection, ns)
 	for k := range secs {
 		t := b[blobHeader+16*k:]
 		s := blobSection{le.Uint32(t), le.Uint32(t[4:]), le.Uint32(t[8:]), le.Uint32(t[12:])}
 		if s.off%4 != 0 || int64(s.off) < blobHeader+16*ns || int64(s.off)+int64(s.length) > int64(len(b)) || sectionNames[s.kind] == "" {
-			return nil, bad("section %d (kind %d, offset %d, length %d) is out of range or misaligned", k, s.kind, s.off, s.length)
+			return nil, bad(blobHeader+16*int64(k), "section %d (kind %d, offset %d, length %d) is out of range or misaligned", k, s.kind, s.off, s.length)
 		}
 		secs[k] = s
 	}
@@ -70,17 +71,28 @@ func Import(blob, scheme []byte) (*Model, error) {
 		return nil, err
 	}
 	bad := func(format string, args ...any) error {
-		return fmt.Errorf("%w: scheme: %s", ErrFormat, fmt.Sprintf(format, args...))
+		return &FormatError{Name: "scheme", Reason: fmt.Sprintf(format, args...)}
 	}
 	var d SchemeDoc
 	if err := json.Unmarshal(scheme, &d); err != nil {
-		return nil, bad("%v", err)
+		e := bad("%v", err).(*FormatError)
+		var se *json.SyntaxError
+		if errors.As(err, &se) {
+			e.Offset = se.Offset
+		}
+		return nil, e
 	}
-	if d.Format != "pipit-scheme" || d.Version != SchemeVersion {
-		return nil, bad("format %q version %d, want pipit-scheme %d", d.Format, d.Version, SchemeVersion)
+	if d.Format != "pipit-scheme" {
+		return nil, bad("format %q, want pipit-scheme", d.Format)
+	}
+	if d.Version != SchemeVersion {
+		return nil, &FormatError{Name: "scheme", Reason: fmt.Sprintf("version %d, this pipit reads %d", d.Version, SchemeVersion), Err: ErrUnsupportedVersion}
 	}
 	if d.Blob.Bytes != len(blob) || d.Blob.CRC32 != fmt.Sprintf("%08x", crc32.ChecksumIEEE(blob)) {
 		return nil, bad("describes a blob of %d bytes with CRC %s, not this one (%d bytes, %08x)", d.Blob.Bytes, d.Blob.CRC32, len(blob), crc32.ChecksumIEEE(blob))
+	}
+	if g := d.Scheme.Granularity; g != PerChannel && g != PerTensor {
+		return nil, bad("weight granularity %q, want %s or %s", g, PerChannel, PerTensor)
 	}
 	if len(d.Layers) == 0 || len(d.Layers) > 4096 {
 		return nil, bad("%d layers", len(d.Layers))
@@ -91,7 +103,7 @@ func Import(blob, scheme []byte) (*Model, error) {
 	}
 	toShape := func(s [3]int) nn.Shape { return nn.Shape{H: s[0], W: s[1], C: s[2]} }
 	m := &Model{Version: ModelVersion, Method: d.Scheme.Method, Input: toShape(d.Input.Shape), InputQ: d.Input.Q, Meta: d.Model,
-		Scheme: Scheme{Weights: PerChannel, Pow2: d.Scheme.Pow2Scales}}
+		Scheme: Scheme{Weights: d.Scheme.Granularity, Pow2: d.Scheme.Pow2Scales}}
 	m.Classes = toShape(d.Output.Shape).Size()
 	for i, sl := range d.Layers {
 		l := Layer{Op: sl.Op, InShape: toShape(sl.InShape), OutShape: toShape(sl.OutShape), Act: sl.Activation, In: sl.Input, Out: sl.Output,

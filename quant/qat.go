@@ -179,28 +179,41 @@ func weightScale(m float64, pow2 bool) float64 {
 }
 
 // Quantize quantises the fine-tuned network with the ranges its FakeQuant
-// layers tracked (the method is recorded as "qat").
+// layers tracked (the method is recorded as "qat"). Like [Calibrate] it
+// checks the worst-case accumulators against int32: an overflow is an
+// error wrapping [ErrOverflow].
 func (q *QAT) Quantize() (*Model, error) {
 	fl, err := Fold(q.Net)
 	if err != nil {
 		return nil, err
 	}
-	if len(fl) != len(q.opFQ) || q.inputFQ == nil || !q.inputFQ.Seen {
+	if len(fl) != len(q.opFQ) || q.inputFQ == nil {
+		return nil, fmt.Errorf("quant: QAT network has not been trained")
+	}
+	lo, hi, seen := q.inputFQ.Range()
+	if !seen {
 		return nil, fmt.Errorf("quant: QAT network has not been trained")
 	}
 	act := make([]QParams, len(fl)+1)
-	act[0] = activationParams(q.inputFQ.Lo, q.inputFQ.Hi, q.scheme.Pow2)
+	act[0] = activationParams(lo, hi, q.scheme.Pow2)
 	for i, fq := range q.opFQ {
 		if fq == nil {
 			act[i+1] = act[i] // pooling keeps its input's parameters
 			continue
 		}
-		act[i+1] = activationParams(fq.Lo, fq.Hi, q.scheme.Pow2)
+		lo, hi, _ := fq.Range()
+		act[i+1] = activationParams(lo, hi, q.scheme.Pow2)
 	}
 	layers, err := quantizeLayers(fl, act, q.scheme)
 	if err != nil {
 		return nil, err
 	}
 	m := &Model{Version: ModelVersion, Scheme: q.scheme, Method: "qat", Input: q.Net.Input, InputQ: act[0], Classes: q.Net.Output().Size(), Layers: layers}
-	return m, m.Validate()
+	if err := m.Validate(); err != nil {
+		return nil, err
+	}
+	if err := m.CheckOverflow(); err != nil {
+		return nil, err
+	}
+	return m, nil
 }

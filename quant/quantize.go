@@ -30,6 +30,7 @@ type Report struct {
 	Method        string             `json:"method"`
 	Layers        []LayerReport      `json:"layers"`
 	Tried         map[string]float64 `json:"tried,omitempty"`   // auto: calibration score per method
+	SQNRWindows   int                `json:"sqnr_windows"`      // calibration windows the SQNR and logit figures are computed on (at most SQNRWindows)
 	LogitCorr     float64            `json:"logit_correlation"` // Pearson, float vs dequantised int8 logits
 	LogitMaxErr   float64            `json:"logit_max_abs_error"`
 	WeightBytes   int64              `json:"int8_weight_bytes"`
@@ -37,12 +38,55 @@ type Report struct {
 	OverheadBytes int64              `json:"overhead_bytes"`     // int32 bias, multiplier, shift
 }
 
-// Quantize calibrates and quantises net on n calibration inputs x (N,
-// Input) with labels (may be nil). With MethodAuto every method is tried
-// and the one with the best int8 accuracy on the calibration set (or,
-// without labels, the highest logit SQNR; ties go to the higher SQNR) is
-// kept. The network is run in inference mode; it is not changed.
+// SQNRWindows bounds the calibration windows whose float activations
+// [Calibrate] keeps to compute the per-layer SQNR and the logit agreement:
+// evenly spaced windows, at most this many, whatever the size of the
+// calibration set (a window of the separable network keeps about 0.2 MB of
+// activations).
+const SQNRWindows = 256
+
+// sliceSource is n inputs in one slice, with labels or none.
+type sliceSource struct {
+	x      []float32
+	in     int
+	labels []int
+}
+
+func (s *sliceSource) Len() int { return len(s.x) / s.in }
+func (s *sliceSource) Sample(i, _ int, dst []float32) int {
+	copy(dst, s.x[i*s.in:(i+1)*s.in])
+	if s.labels == nil {
+		return 0
+	}
+	return s.labels[i]
+}
+
+// Quantize is [Calibrate] on n calibration inputs x (N, Input) held in
+// memory, with labels (nil: choose the method by SQNR alone).
 func Quantize(net *nn.Network, x []float32, n int, labels []int, cfg Config) (*Model, *Report, error) {
+	if n < 1 || len(x) != n*net.Input.Size() {
+		return nil, nil, fmt.Errorf("quant: %d calibration values for %d inputs of %d", len(x), n, net.Input.Size())
+	}
+	if labels != nil && len(labels) != n {
+		return nil, nil, fmt.Errorf("quant: %d labels for %d calibration inputs", len(labels), n)
+	}
+	return calibrate(net, &sliceSource{x: x, in: net.Input.Size(), labels: labels}, labels != nil, cfg)
+}
+
+// Calibrate calibrates and quantises net on the windows of calib, read in
+// batches as a stream: every tensor's range observer keeps a bounded
+// sample of its values, and float activations are kept only for
+// [SQNRWindows] evenly spaced windows, so memory does not grow with the
+// calibration set. With MethodAuto every method is tried and the one with
+// the best int8 accuracy on the calibration labels is kept (ties go to
+// the higher logit SQNR). The network is run in inference mode; it is not
+// changed. The model's worst-case accumulators are checked against int32
+// ([Model.CheckOverflow]); an overflow is an error.
+func Calibrate(net *nn.Network, calib nn.SampleSource, cfg Config) (*Model, *Report, error) {
+	return calibrate(net, calib, true, cfg)
+}
+
+func calibrate(net *nn.Network, src nn.SampleSource, labelled bool, cfg Config) (*Model, *Report, error) {
 	if cfg.Method == "" {
 		cfg.Method = MethodAuto
 	}
@@ -52,33 +96,48 @@ func Quantize(net *nn.Network, x []float32, n int, labels []int, cfg Config) (*M
 	if cfg.Scheme.Weights != PerChannel && cfg.Scheme.Weights != PerTensor {
 		return nil, nil, fmt.Errorf("quant: weight granularity %q (want %s or %s)", cfg.Scheme.Weights, PerChannel, PerTensor)
 	}
-	if n < 1 || len(x) != n*net.Input.Size() {
-		return nil, nil, fmt.Errorf("quant: %d calibration values for %d inputs of %d", len(x), n, net.Input.Size())
+	n := src.Len()
+	if n < 1 {
+		return nil, nil, fmt.Errorf("quant: empty calibration set")
 	}
 	fl, err := Fold(net)
 	if err != nil {
 		return nil, nil, err
 	}
-	// Observe the input and every folded layer's output over the calibration set.
+	// Observe the input and every folded layer's output over the calibration
+	// set; keep the activations of every every-th window for the SQNR.
 	obs := make([]*observer, len(fl)+1)
 	for i := range obs {
 		obs[i] = newObserver()
 	}
-	floatActs := make([][]float32, len(fl)+1) // kept for SQNR (subsampled by samples)
+	every := (n + SQNRWindows - 1) / SQNRWindows
+	kept := make([][]float32, len(fl)+1) // (sample windows, tensor size) per tensor
 	const batch = 32
 	in := net.Input.Size()
+	xb := make([]float32, batch*in)
 	for lo := 0; lo < n; lo += batch {
 		hi := min(lo+batch, n)
-		xb := x[lo*in : hi*in]
-		net.Forward(xb, hi-lo, false, nil)
-		obs[0].add(xb)
-		floatActs[0] = append(floatActs[0], xb...)
+		for i := lo; i < hi; i++ {
+			src.Sample(i, 0, xb[(i-lo)*in:(i-lo+1)*in])
+		}
+		x := xb[:(hi-lo)*in]
+		net.Forward(x, hi-lo, false, nil)
+		obs[0].add(x)
 		for i, f := range fl {
-			a := net.Activation(f.NetIndex, hi-lo)
-			obs[i+1].add(a)
-			floatActs[i+1] = append(floatActs[i+1], a...)
+			obs[i+1].add(net.Activation(f.NetIndex, hi-lo))
+		}
+		for i := lo; i < hi; i++ {
+			if i%every != 0 {
+				continue
+			}
+			kept[0] = append(kept[0], x[(i-lo)*in:(i-lo+1)*in]...)
+			for k, f := range fl {
+				sz := f.Out.Size()
+				kept[k+1] = append(kept[k+1], net.Activation(f.NetIndex, hi-lo)[(i-lo)*sz:(i-lo+1)*sz]...)
+			}
 		}
 	}
+	sample := len(kept[0]) / in
 	build := func(method string) (*Model, error) {
 		act := make([]QParams, len(obs))
 		for i, o := range obs {
@@ -107,11 +166,11 @@ func Quantize(net *nn.Network, x []float32, n int, labels []int, cfg Config) (*M
 		if err != nil {
 			return nil, nil, err
 		}
-		rep, acc := m.analyse(floatActs, n, labels)
+		rep := m.analyse(kept, sample)
 		score := rep.Layers[len(rep.Layers)-1].SQNRdB
 		sqnr := score
-		if labels != nil {
-			score = acc
+		if labelled {
+			score = m.accuracy(src)
 		}
 		tried[meth] = score
 		if score > bestScore || (score == bestScore && sqnr > bestSQNR) {
@@ -122,27 +181,48 @@ func Quantize(net *nn.Network, x []float32, n int, labels []int, cfg Config) (*M
 		bestRep.Tried = tried
 	}
 	bestRep.Method = best.Method
+	if err := best.CheckOverflow(); err != nil {
+		return nil, nil, err
+	}
 	return best, bestRep, nil
 }
 
-// analyse runs the integer engine over the calibration inputs (floatActs[0])
-// and compares every layer with the float activations.
-func (m *Model) analyse(floatActs [][]float32, n int, labels []int) (*Report, float64) {
-	rep := &Report{Method: m.Method}
+// accuracy is the fraction of src's windows whose int8 arg-max logit is
+// their label.
+func (m *Model) accuracy(src nn.SampleSource) float64 {
+	n := src.Len()
+	x := make([]float32, m.Input.Size())
+	q := make([]int8, len(x))
+	correct := 0
+	for i := 0; i < n; i++ {
+		label := src.Sample(i, 0, x)
+		m.InputQ.QuantizeInput(q, x)
+		outs := m.RunAll(q)
+		if nn.Argmax(outs[len(outs)-1]) == label {
+			correct++
+		}
+	}
+	return float64(correct) / float64(n)
+}
+
+// analyse runs the integer engine over the n sample windows whose float
+// input and activations are acts[0] and acts[i+1], and compares every
+// layer with the float activations.
+func (m *Model) analyse(acts [][]float32, n int) *Report {
+	rep := &Report{Method: m.Method, SQNRWindows: n}
 	L := len(m.Layers)
 	sig := make([]float64, L)
 	noise := make([]float64, L)
 	in := m.Input.Size()
 	q := make([]int8, in)
-	correct := 0
 	var sx, sy, sxx, syy, sxy float64
 	var cnt float64
 	for s := 0; s < n; s++ {
-		m.InputQ.QuantizeInput(q, floatActs[0][s*in:(s+1)*in])
+		m.InputQ.QuantizeInput(q, acts[0][s*in:(s+1)*in])
 		outs := m.RunAll(q)
 		for i, l := range m.Layers {
 			sz := l.OutShape.Size()
-			f := floatActs[i+1][s*sz : (s+1)*sz]
+			f := acts[i+1][s*sz : (s+1)*sz]
 			for j, v := range outs[i] {
 				d := l.Out.dequant(int32(v))
 				sig[i] += float64(f[j]) * float64(f[j])
@@ -155,18 +235,6 @@ func (m *Model) analyse(floatActs [][]float32, n int, labels []int) (*Report, fl
 				}
 			}
 		}
-		if labels != nil {
-			logits := outs[L-1]
-			best := 0
-			for c := range logits {
-				if logits[c] > logits[best] {
-					best = c
-				}
-			}
-			if best == labels[s] {
-				correct++
-			}
-		}
 	}
 	rep.LogitCorr = (cnt*sxy - sx*sy) / math.Sqrt((cnt*sxx-sx*sx)*(cnt*syy-sy*sy))
 	for i := range m.Layers {
@@ -177,11 +245,7 @@ func (m *Model) analyse(floatActs [][]float32, n int, labels []int) (*Report, fl
 	}
 	rep.WeightBytes, rep.OverheadBytes = m.WeightBytes()
 	rep.FloatBytes = 4 * rep.WeightBytes
-	acc := 0.0
-	if labels != nil {
-		acc = float64(correct) / float64(n)
-	}
-	return rep, acc
+	return rep
 }
 
 // worstAccumulator bounds |acc| of a MAC layer over every possible int8
@@ -217,12 +281,12 @@ func (l *Layer) worstAccumulator() (int64, float64) {
 	return worst, math.Log2(float64(math.MaxInt32) / math.Max(float64(worst), 1))
 }
 
-// CheckOverflow returns an error naming the first layer whose worst-case
-// accumulator does not fit int32.
+// CheckOverflow returns an error wrapping [ErrOverflow] naming the first
+// layer whose worst-case accumulator does not fit int32.
 func (m *Model) CheckOverflow() error {
 	for i := range m.Layers {
 		if w, _ := m.Layers[i].worstAccumulator(); w > math.MaxInt32 {
-			return fmt.Errorf("quant: layer %d (%s): worst-case accumulator %d exceeds int32", i, m.Layers[i].Op, w)
+			return fmt.Errorf("%w: layer %d (%s): worst-case accumulator %d exceeds int32", ErrOverflow, i, m.Layers[i].Op, w)
 		}
 	}
 	return nil

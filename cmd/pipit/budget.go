@@ -4,12 +4,12 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"strings"
 	"text/tabwriter"
 
 	"github.com/spf13/cobra"
 
+	"github.com/pipit-audio/pipit"
 	"github.com/pipit-audio/pipit/features"
 	"github.com/pipit-audio/pipit/nn"
 )
@@ -37,36 +37,7 @@ type budgetReport struct {
 	// network's alone.
 	FrontEndConfig features.Config     `json:"front_end_config"`
 	FrontEnd       features.DeviceCost `json:"front_end"`
-	WholePath      wholePath           `json:"whole_path"`
-}
-
-// wholePath is the budget of front end + network, resource by resource.
-// Compute charges each front-end floating-point operation as one
-// multiply-accumulate of the profile's budget (conservative: a Cortex-M4F
-// issues most single-precision operations in one cycle, while the
-// profile's MAC rate assumes several cycles per int8 MAC).
-type wholePath struct {
-	ComputePerSecond float64 `json:"compute_per_second"` // network MAC/s + front-end flop/s
-	RAMBytes         int64   `json:"ram_bytes"`          // pool + front-end buffers
-	FlashBytes       int64   `json:"flash_bytes"`        // weights + front-end tables + code
-	CodeBytes        int64   `json:"code_bytes"`         // runtime + front end, measured (see nn.RuntimeCodeBytes)
-	ComputeUse       float64 `json:"compute_use"`
-	RAMUse           float64 `json:"ram_use"`
-	FlashUse         float64 `json:"flash_use"`
-	ComputeFits      bool    `json:"compute_fits"`
-	RAMFits          bool    `json:"ram_fits"`
-	FlashFits        bool    `json:"flash_fits"`
-	Fits             bool    `json:"fits"`
-}
-
-func newWholePath(c nn.CostReport, v nn.Verdict, fe features.DeviceCost, p nn.Profile) wholePath {
-	w := wholePath{ComputePerSecond: v.MACsPerSecond + fe.FlopsPerSecond, RAMBytes: c.RAMBytes + int64(fe.RAMBytes),
-		CodeBytes: nn.RuntimeCodeBytes + features.FrontEndCodeBytes}
-	w.FlashBytes = c.FlashBytes + int64(fe.TableBytes) + w.CodeBytes
-	w.ComputeUse, w.RAMUse, w.FlashUse = w.ComputePerSecond/p.MACsPerSecond, float64(w.RAMBytes)/float64(p.RAMBytes), float64(w.FlashBytes)/float64(p.FlashBytes)
-	w.ComputeFits, w.RAMFits, w.FlashFits = w.ComputeUse <= 1, w.RAMUse <= 1, w.FlashUse <= 1
-	w.Fits = w.ComputeFits && w.RAMFits && w.FlashFits
-	return w
+	WholePath      pipit.WholePath     `json:"whole_path"`
 }
 
 // netForFrontEnd builds the network a front end feeds: a built-in
@@ -90,7 +61,7 @@ func netForFrontEnd(arch string, classes int, cfg *features.Config, bandsSet boo
 		_, body, _ := strings.Cut(spec, "\n") // drop the input line
 		return nn.FromSpec(body, nn.Shape{H: cfg.Bands, W: frames, C: 1}, 1)
 	}
-	net, err := loadArch(arch, classes, 1)
+	net, err := pipit.NewNetwork(arch, classes, 1)
 	if err != nil {
 		return nil, err
 	}
@@ -100,28 +71,6 @@ func netForFrontEnd(arch string, classes int, cfg *features.Config, bandsSet boo
 	if net.Input.H != cfg.Bands || net.Input.C != 1 {
 		net.Close()
 		return nil, fmt.Errorf("%s: network input %v does not take %d bands × frames × 1 (set --bands)", arch, net.Input, cfg.Bands)
-	}
-	return net, nil
-}
-
-// loadArch builds a built-in architecture by name or a network from a
-// layer-spec file.
-func loadArch(arch string, classes int, seed uint64) (*nn.Network, error) {
-	for _, name := range nn.ArchNames() {
-		if arch == name {
-			return nn.Arch(arch, classes, seed)
-		}
-	}
-	text, err := os.ReadFile(arch)
-	if err != nil {
-		if os.IsNotExist(err) {
-			return nil, fmt.Errorf("--arch %q is neither a built-in architecture (%s) nor a spec file", arch, strings.Join(nn.ArchNames(), ", "))
-		}
-		return nil, err
-	}
-	net, err := nn.FromSpec(string(text), nn.Shape{}, seed)
-	if err != nil {
-		return nil, fmt.Errorf("%s: %w", arch, err)
 	}
 	return net, nil
 }
@@ -170,9 +119,8 @@ costs the int8 deployment, --elem 4 float32.`,
 			return err
 		}
 		cfg := fe.cfg
-		if cfg.FFTSize == 0 {
-			cfg.FFTSize = cfg.WindowSamples
-		}
+		cfg.FMaxHz = 0 // completed by fe.resolve below; only the FFT size matters before
+		cfg = cfg.Complete()
 		net, err := netForFrontEnd(arch, classes, &cfg, cmd.Flags().Changed("bands"), secs)
 		if err != nil {
 			return err
@@ -187,7 +135,7 @@ costs the int8 deployment, --elem 4 float32.`,
 		}
 		c := nn.Cost(net, elem)
 		v := c.Check(p, ips)
-		whole := newWholePath(c, v, fc, p)
+		whole := pipit.NewWholePath(c, v, fc, p)
 		rep := budgetReport{
 			Arch: arch, Classes: net.Output().Size(), Input: net.Input.String(), ElemBytes: elem,
 			WindowSeconds: secs, Overlap: overlap, InferencesPerSec: ips,
@@ -238,7 +186,7 @@ func printBudget(w io.Writer, r budgetReport) {
 }
 
 // printWholePath prints the front end beside the network, per resource.
-func printWholePath(w io.Writer, cfg features.Config, fe features.DeviceCost, wp wholePath, netMACs float64, netRAM, netFlash int64, p nn.Profile) {
+func printWholePath(w io.Writer, cfg features.Config, fe features.DeviceCost, wp pipit.WholePath, netMACs float64, netRAM, netFlash int64, p nn.Profile) {
 	fmt.Fprintf(w, "whole path, C front end %d Hz, window %d, hop %d, FFT %d, %d bands (%.2f frames/s, %d flops/frame):\n",
 		cfg.SampleRateHz, cfg.WindowSamples, cfg.HopSamples, cfg.FFTSize, cfg.Bands, fe.FramesPerSecond, fe.FlopsPerFrame)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)

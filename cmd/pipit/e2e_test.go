@@ -49,8 +49,8 @@ func TestSynthTrainEval(t *testing.T) {
 	if err := json.Unmarshal([]byte(out), &ev); err != nil {
 		t.Fatal(err)
 	}
-	if ev.Fold != 0 || ev.ClipAcc != rep.TestClipAccuracy || ev.Accuracy != rep.TestAccuracy {
-		t.Errorf("eval on fold %d: accuracy %.3f / clips %.3f; train reported %.3f / %.3f", ev.Fold, ev.Accuracy, ev.ClipAcc, rep.TestAccuracy, rep.TestClipAccuracy)
+	if ev.Fold != "0" || ev.ClipAccuracy != rep.TestClipAccuracy || ev.Accuracy != rep.TestAccuracy {
+		t.Errorf("eval on fold %s: accuracy %.3f / clips %.3f; train reported %.3f / %.3f", ev.Fold, ev.Accuracy, ev.ClipAccuracy, rep.TestAccuracy, rep.TestClipAccuracy)
 	}
 	elapsed := time.Since(t0)
 	t.Logf("synth → train → eval: %.1f s; test clip accuracy %.3f", elapsed.Seconds(), rep.TestClipAccuracy)

@@ -3,99 +3,26 @@ package main
 import (
 	"fmt"
 	"io"
-	"os"
 
 	"github.com/spf13/cobra"
 
-	"github.com/pipit-audio/pipit/datasets"
+	"github.com/pipit-audio/pipit"
 	"github.com/pipit-audio/pipit/internal/plots"
 	"github.com/pipit-audio/pipit/nn"
-	"github.com/pipit-audio/pipit/quant"
 )
 
-// readHead returns up to n bytes from the start of path.
-func readHead(path string, n int) ([]byte, error) {
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, err
-	}
-	defer f.Close()
-	b := make([]byte, n)
-	k, _ := io.ReadFull(f, b)
-	return b[:k], nil
-}
-
-type levelReport struct {
-	nn.Metrics
-	Confusion [][]int `json:"confusion"`
-}
-
+// evalReport is the JSON report of eval.
 type evalReport struct {
-	Model      string      `json:"model"`
-	Data       string      `json:"data"`
-	Fold       int         `json:"fold"` // -1: every clip
-	Classes    []string    `json:"classes"`
-	Windows    levelReport `json:"windows"`
-	ClipsMean  levelReport `json:"clips_mean_probability"`
-	ClipsVote  levelReport `json:"clips_majority_vote"`
-	Accuracy   float64     `json:"accuracy"`      // window level
-	ClipAcc    float64     `json:"clip_accuracy"` // mean probability
-	Loss       float64     `json:"loss"`
-	PNG        string      `json:"confusion_png"`
-	Skipped    int         `json:"skipped_clips"`
-	NumWindows int         `json:"num_windows"`
-	NumClips   int         `json:"num_clips"`
-}
-
-// loadedModel is a trained float model, or a quantised one (q set), with
-// what it was trained on.
-type loadedModel struct {
-	net  *nn.Network
-	q    *quant.Model
-	info *datasets.ModelInfo
-}
-
-func (m *loadedModel) close() {
-	if m.net != nil {
-		m.net.Close()
-	}
-}
-
-func (m *loadedModel) predictor() predictor {
-	if m.q != nil {
-		return int8Predictor(m.q)
-	}
-	return floatPredictor(m.net)
-}
-
-// loadModel reads a float model (nn checkpoint) or a quantised model.
-func loadModel(path string) (*loadedModel, error) {
-	if head, err := readHead(path, 8); err == nil && quant.IsModelFile(head) {
-		q, err := quant.ReadModelFile(path)
-		if err != nil {
-			return nil, err
-		}
-		info, err := datasets.ParseModelInfo(path, q.Meta)
-		if err != nil {
-			return nil, err
-		}
-		return &loadedModel{q: q, info: info}, nil
-	}
-	ck, err := nn.ReadCheckpoint(path)
-	if err != nil {
-		return nil, err
-	}
-	info, err := datasets.ParseModelInfo(path, ck.Meta)
-	if err != nil {
-		ck.Trainer.Net.Close()
-		return nil, err
-	}
-	return &loadedModel{net: ck.Trainer.Net, info: info}, nil
+	Model string `json:"model"`
+	Data  string `json:"data"`
+	Fold  string `json:"fold"` // fold label, or "all"
+	PNG   string `json:"confusion_png"`
+	*pipit.Evaluation
 }
 
 func newEvalCmd() *cobra.Command {
 	var model, data, group, png, cacheDir string
-	var fold int
+	var fold string
 	var asJSON, skipBad bool
 	cmd := &cobra.Command{
 		Use:   "eval --model MODEL --data MANIFEST|FOLDER",
@@ -110,7 +37,7 @@ confusion matrix is also drawn as a PNG.`,
 	f := cmd.Flags()
 	f.StringVar(&model, "model", "", "model file written by pipit train (required)")
 	f.StringVar(&data, "data", "", "manifest CSV or class-folder corpus (required)")
-	f.IntVar(&fold, "fold", -2, "fold to evaluate; -1 for every clip (default: the model's test fold)")
+	f.StringVar(&fold, "fold", "", "label of the fold to evaluate, or "+pipit.AllFolds+" for every clip (default: the model's test fold)")
 	f.StringVar(&group, "group", "", "manifest column naming the source recording")
 	f.StringVar(&png, "png", "", "confusion-matrix PNG to write (default: MODEL.confusion.png)")
 	f.StringVar(&cacheDir, "cache", defaultCacheDir(), "feature cache directory (empty: no cache)")
@@ -119,54 +46,23 @@ confusion matrix is also drawn as a PNG.`,
 	cmd.MarkFlagRequired("model")
 	cmd.MarkFlagRequired("data")
 	cmd.RunE = func(cmd *cobra.Command, _ []string) error {
-		m, err := loadModel(model)
+		m, err := pipit.LoadModel(model)
 		if err != nil {
 			return err
 		}
-		defer m.close()
-		c, err := datasets.Open(data, group)
-		if err != nil {
-			return err
-		}
-		if err := m.info.Relabel(c); err != nil {
-			return fmt.Errorf("%s: %w", data, err)
-		}
-		if !c.HasFolds {
-			if err := c.AssignFolds(m.info.Folds, m.info.FoldSeed); err != nil {
-				return err
-			}
-		}
-		if fold == -2 {
-			fold = m.info.TestFold
-		}
-		if fold >= c.Folds || fold < -1 {
-			return fmt.Errorf("--fold %d: the corpus has folds 0..%d", fold, c.Folds-1)
-		}
-		var ids []int
-		for _, cl := range c.Clips {
-			if fold == -1 || cl.Fold == fold {
-				ids = append(ids, cl.ID)
-			}
+		defer m.Close()
+		if fold == "" {
+			fold = m.Info().TestFold
 		}
 		if png == "" {
 			png = model + ".confusion.png"
 		}
-		stderr := cmd.ErrOrStderr()
-		b := newTask(stderr, "load")
-		set, err := datasets.Load(c, ids, datasets.Options{FrontEnd: m.info.FrontEnd, Window: m.info.Window, Cache: &datasets.Cache{Dir: cacheDir},
-			SkipBad: skipBad, Warn: func(err error) { fmt.Fprintf(stderr, "skipping: %v\n", err) },
-			Progress: func(d, t int) { b.step(d, t, "clips", "") }})
+		ev, err := pipit.EvaluateFold(m, pipit.Data{Path: data, Group: group, CacheDir: cacheDir, SkipBad: skipBad}, fold, newReporter(cmd.ErrOrStderr()))
 		if err != nil {
 			return err
 		}
-		b.finish(fmt.Sprintf("%d clips → %d windows", len(set.Clips), set.Len()))
-		set.Stats = m.info.Stats
-		rep, err := evaluateSet(m.predictor(), set, m.info.Classes)
-		if err != nil {
-			return err
-		}
-		rep.Model, rep.Data, rep.Fold, rep.PNG = model, data, fold, png
-		if err := plots.SavePNG(png, confusionFigure(rep.Windows.Confusion, m.info.Classes, fmt.Sprintf("confusion (windows), fold %d", fold))); err != nil {
+		rep := &evalReport{Model: model, Data: data, Fold: fold, PNG: png, Evaluation: ev}
+		if err := plots.SavePNG(png, confusionFigure(ev.Windows.Confusion, ev.Classes, "confusion (windows), fold "+fold)); err != nil {
 			return err
 		}
 		if asJSON {
@@ -178,85 +74,11 @@ confusion matrix is also drawn as a PNG.`,
 	return cmd
 }
 
-// predictor returns the logits (n, L) of n inputs.
-type predictor func(x []float32, n int) []float32
-
-func floatPredictor(net *nn.Network) predictor {
-	return func(x []float32, n int) []float32 {
-		out := make([]float32, n*net.Output().Size())
-		net.Predict(out, x, n, 64)
-		return out
-	}
-}
-
-func int8Predictor(m *quant.Model) predictor {
-	return func(x []float32, n int) []float32 {
-		in := m.Input.Size()
-		out := make([]float32, 0, n*m.Classes)
-		for i := 0; i < n; i++ {
-			out = append(out, m.Run(x[i*in:(i+1)*in])...)
-		}
-		return out
-	}
-}
-
-// evaluateSet runs a model over set and computes window and clip metrics.
-func evaluateSet(predict predictor, set *datasets.Set, classes []string) (*evalReport, error) {
-	L := len(classes)
-	n, in := set.Len(), set.InputSize()
-	labels := make([]int, n)
-	logits := make([]float32, 0, n*L)
-	const chunk = 256 // windows in memory at once, whatever the corpus size
-	x := make([]float32, chunk*in)
-	for lo := 0; lo < n; lo += chunk {
-		hi := min(lo+chunk, n)
-		for i := lo; i < hi; i++ {
-			labels[i] = set.Sample(i, 0, x[(i-lo)*in:(i-lo+1)*in])
-		}
-		logits = append(logits, predict(x[:(hi-lo)*in], hi-lo)...)
-	}
-	loss, _, err := (&nn.SoftmaxCrossEntropy{Classes: L}).Forward(logits, labels, nil)
-	if err != nil {
-		return nil, err
-	}
-	ev := &nn.Evaluation{Probs: make([]float32, len(logits)), Labels: labels, Preds: make([]int, n)}
-	nn.Softmax(ev.Probs, logits, L)
-	for i := 0; i < n; i++ {
-		best := 0
-		for c := 1; c < L; c++ {
-			if logits[i*L+c] > logits[i*L+best] {
-				best = c
-			}
-		}
-		ev.Preds[i] = best
-	}
-	rep := &evalReport{Classes: classes, Loss: loss, Skipped: len(set.Skipped), NumWindows: set.Len(), NumClips: len(set.Clips)}
-	level := func(labels, preds []int) (levelReport, error) {
-		cm, err := nn.NewConfusion(L, labels, preds)
-		if err != nil {
-			return levelReport{}, err
-		}
-		return levelReport{Metrics: cm.Metrics(), Confusion: cm.Counts}, nil
-	}
-	if rep.Windows, err = level(ev.Labels, ev.Preds); err != nil {
-		return nil, err
-	}
-	labels, byMean, byVote := set.ClipVotes(ev.Probs, L)
-	if rep.ClipsMean, err = level(labels, byMean); err != nil {
-		return nil, err
-	}
-	if rep.ClipsVote, err = level(labels, byVote); err != nil {
-		return nil, err
-	}
-	rep.Accuracy, rep.ClipAcc = rep.Windows.Accuracy, rep.ClipsMean.Accuracy
-	return rep, nil
-}
-
 func printEval(w io.Writer, r *evalReport) {
-	fmt.Fprintf(w, "model %s on %s, fold %d: %d clips, %d windows\n\n", r.Model, r.Data, r.Fold, r.NumClips, r.NumWindows)
+	fmt.Fprintf(w, "model %s on %s, fold %s: %d clips, %d windows\n\n", r.Model, r.Data, r.Fold, r.NumClips, r.NumWindows)
 	for _, lv := range []struct {
 		name string
-		l    levelReport
+		l    pipit.Level
 	}{{"windows", r.Windows}, {"clips, mean probability", r.ClipsMean}, {"clips, majority vote", r.ClipsVote}} {
 		fmt.Fprintf(w, "%-24s accuracy %.3f  balanced accuracy %.3f  macro F1 %.3f\n", lv.name, lv.l.Accuracy, lv.l.BalancedAccuracy, lv.l.MacroF1)
 	}

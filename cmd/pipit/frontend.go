@@ -37,14 +37,11 @@ func addFrontEndFlags(cmd *cobra.Command) *frontEndFlags {
 // config resolves the defaults that depend on other flags and validates.
 func (f *frontEndFlags) config() (features.Config, error) { return f.resolve(f.cfg) }
 
-// resolve is config for c, the flags' settings with some fields changed.
+// resolve is config for c, the flags' settings with some fields changed:
+// --fmax (0: rate/2) and the defaults that follow from other fields
+// (features.Config.Complete).
 func (f *frontEndFlags) resolve(c features.Config) (features.Config, error) {
-	if c.FFTSize == 0 {
-		c.FFTSize = c.WindowSamples
-	}
 	c.FMaxHz = f.fmax
-	if c.FMaxHz == 0 {
-		c.FMaxHz = float64(c.SampleRateHz) / 2
-	}
+	c = c.Complete()
 	return c, c.Validate()
 }

@@ -9,10 +9,10 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"github.com/pipit-audio/pipit"
 	"github.com/pipit-audio/pipit/internal/fsutil"
 	"github.com/pipit-audio/pipit/internal/plots"
 	"github.com/pipit-audio/pipit/logbook"
-	"github.com/pipit-audio/pipit/nn"
 )
 
 // logbookReport is what `pipit logbook --json` prints.
@@ -89,23 +89,19 @@ CAUTION: ` + logbook.Caution,
 		if err != nil {
 			return err
 		}
-		m, err := loadModel(model)
+		m, err := pipit.LoadModel(model)
 		if err != nil {
 			return err
 		}
-		defer m.close()
-		win := m.info.Window
+		defer m.Close()
+		info := m.Info()
+		win := info.Window
 		if overlap >= 0 {
 			win.Overlap = overlap
 		}
-		L := len(m.info.Classes)
-		predict := m.predictor()
-		cfg := logbook.Config{FrontEnd: m.info.FrontEnd, Window: win, Stats: m.info.Stats, Classes: m.info.Classes,
+		cfg := logbook.Config{FrontEnd: info.FrontEnd, Window: win, Stats: info.Stats, Classes: info.Classes,
 			Classify: func(x []float32, n int) ([]float32, error) {
-				logits := predict(x, n)
-				p := make([]float32, len(logits))
-				nn.Softmax(p, logits, L)
-				return p, nil
+				return pipit.Probabilities(m, x, n), nil
 			},
 			Events:      logbook.EventConfig{OnProb: onProb, OffProb: offProb, MinEventSec: minEvent, Background: background},
 			Calibration: cal}

@@ -155,3 +155,31 @@ func span(d time.Duration) string {
 	m := int(s) / 60
 	return fmt.Sprintf("%d min %02d s", m, int(s)-60*m)
 }
+
+// reporter shows a library call's progress (pipit.Reporter) on a
+// console: each stage is a task.
+type reporter struct {
+	w io.Writer
+	t *task
+}
+
+func newReporter(w io.Writer) *reporter { return &reporter{w: newConsole(w)} }
+
+func (r *reporter) Stage(label string) { r.t = newTask(r.w, label) }
+
+func (r *reporter) Step(done, total int, unit, note string) {
+	if r.t != nil {
+		r.t.step(done, total, unit, note)
+	}
+}
+
+func (r *reporter) Done(note string) {
+	if r.t != nil {
+		r.t.finish(note)
+		r.t = nil
+	}
+}
+
+func (r *reporter) Note(line string) { fmt.Fprintln(r.w, line) }
+
+func (r *reporter) Warn(err error) { fmt.Fprintf(r.w, "skipping: %v\n", err) }

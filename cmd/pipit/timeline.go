@@ -8,6 +8,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"github.com/pipit-audio/pipit"
 	"github.com/pipit-audio/pipit/datasets"
 	"github.com/pipit-audio/pipit/features"
 	"github.com/pipit-audio/pipit/internal/fsutil"
@@ -72,28 +73,27 @@ likely class. Classifications are indicative, not a certified measurement.`,
 }
 
 func runTimeline(model, in, out string, overlap float64) (*timelineReport, error) {
-	m, err := loadModel(model)
+	m, err := pipit.LoadModel(model)
 	if err != nil {
 		return nil, err
 	}
-	defer m.close()
+	defer m.Close()
+	info := m.Info()
 	a, err := features.ReadWAVFile(in)
 	if err != nil {
 		return nil, err
 	}
-	win := m.info.Window
+	win := info.Window
 	if overlap >= 0 {
 		win.Overlap = overlap
 	}
-	rec, err := datasets.CutRecording(a, m.info.FrontEnd, win, m.info.Stats)
+	rec, err := datasets.CutRecording(a, info.FrontEnd, win, info.Stats)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", in, err)
 	}
-	L := len(m.info.Classes)
-	logits := m.predictor()(rec.Inputs, rec.N)
-	probs := make([]float32, len(logits))
-	nn.Softmax(probs, logits, L)
-	segs, err := datasets.Segments(probs, m.info.Classes, rec.StartSec, rec.WindowSec)
+	L := len(info.Classes)
+	probs := pipit.Probabilities(m, rec.Inputs, rec.N)
+	segs, err := datasets.Segments(probs, info.Classes, rec.StartSec, rec.WindowSec)
 	if err != nil {
 		return nil, err
 	}
@@ -103,16 +103,11 @@ func runTimeline(model, in, out string, overlap float64) (*timelineReport, error
 		rep.ClassTotal[s.Label] += s.EndSec - s.StartSec
 	}
 	err = fsutil.WriteWith(rep.CSV, func(w io.Writer) error {
-		fmt.Fprintf(w, "start_s,end_s,class,probability,%s\n", strings.Join(m.info.Classes, ","))
+		fmt.Fprintf(w, "start_s,end_s,class,probability,%s\n", strings.Join(info.Classes, ","))
 		for i, st := range rec.StartSec {
 			p := probs[i*L : (i+1)*L]
-			best := 0
-			for c := range p {
-				if p[c] > p[best] {
-					best = c
-				}
-			}
-			fmt.Fprintf(w, "%.3f,%.3f,%s,%.4f", st, st+rec.WindowSec, m.info.Classes[best], p[best])
+			best := nn.Argmax(p)
+			fmt.Fprintf(w, "%.3f,%.3f,%s,%.4f", st, st+rec.WindowSec, info.Classes[best], p[best])
 			for _, v := range p {
 				fmt.Fprintf(w, ",%.4f", v)
 			}
@@ -136,7 +131,7 @@ func runTimeline(model, in, out string, overlap float64) (*timelineReport, error
 		}
 	}
 	fig := plots.HeatMap{Title: "class probabilities over time: " + filepath.Base(in), XLabel: "time (s, window centres)", YLabel: "", BarLabel: "probability",
-		Grid: g, YTicks: m.info.Classes}
+		Grid: g, YTicks: info.Classes}
 	if err := plots.SavePNG(rep.PNG, fig); err != nil {
 		return nil, err
 	}

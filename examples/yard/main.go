@@ -1,7 +1,11 @@
-// Command yard walks through pipit's library without the CLI, on a small
-// synthetic timber-yard corpus: generate clips, cut them into windows with
-// group-safe folds, train the separable network, quantise it to int8,
-// compare float and int8 on the held-out fold, and export blob + scheme.
+// Command yard walks through the whole path with pipit's library alone, as
+// `pipit demo` does, on a small synthetic timber-yard corpus: generate
+// clips, train the separable network with fold 0 held out for testing and
+// fold 1 for validation (early stopping never sees the test fold), cost it
+// against a device profile, calibrate it to int8 on the validation fold,
+// compare float and int8 on the test fold, export it, and check the export
+// against the Go engine: read back, compiled C, C front end, and an
+// emulated Cortex-M4 when the cross tools are installed.
 //
 //	go run ./examples/yard [DIR]
 package main
@@ -9,12 +13,14 @@ package main
 import (
 	"fmt"
 	"os"
+	"os/exec"
 	"path/filepath"
 
+	"github.com/pipit-audio/pipit"
 	"github.com/pipit-audio/pipit/datasets"
 	"github.com/pipit-audio/pipit/features"
 	"github.com/pipit-audio/pipit/nn"
-	"github.com/pipit-audio/pipit/quant"
+	"github.com/pipit-audio/pipit/quant/cref"
 )
 
 func main() {
@@ -24,85 +30,69 @@ func main() {
 	}
 	check(err)
 
-	// 1. A corpus: 8 classes × 12 clips × 1 s, 3 folds.
-	corpus, err := datasets.Synthesize(filepath.Join(dir, "corpus"), datasets.SynthConfig{ClipsPerClass: 12, Folds: 3, Seed: 4}, nil)
+	// 1. A corpus: 8 classes × 16 clips × 1 s in 4 group-safe folds.
+	_, err = datasets.Synthesize(filepath.Join(dir, "corpus"), datasets.SynthConfig{ClipsPerClass: 16, Folds: 4, Seed: 4}, nil)
 	check(err)
-	test, rest := corpus.Split(0)
+	data := pipit.Data{Path: filepath.Join(dir, "corpus", "manifest.csv")}
+	corpus, err := pipit.OpenCorpus(data, 0, 1)
+	check(err)
 
-	// 2. Windows of 61 frames (the reference input), normalised by the
-	// training windows' statistics; training windows augmented.
-	fe := features.DefaultConfig()
-	win := datasets.WindowConfig{Frames: nn.ReferenceInput.W, Overlap: 0.5, Pad: datasets.PadZeros}
-	trainSet, err := datasets.Load(corpus, rest, datasets.Options{FrontEnd: fe, Window: win, KeepAudio: true})
+	// 2. Train on folds 2 and 3, stop early on fold 1, test on fold 0.
+	recipe := pipit.DefaultRecipe()
+	recipe.Epochs, recipe.Batch = 40, 16
+	model := filepath.Join(dir, "model.pnet")
+	tr, err := pipit.Train(corpus, pipit.TrainConfig{Arch: "separable", FrontEnd: features.DefaultConfig(), Overlap: 0.5,
+		TestFold: "0", ValFold: "1", Recipe: recipe, Out: model}, nil)
 	check(err)
-	testSet, err := datasets.Load(corpus, test, datasets.Options{FrontEnd: fe, Window: win})
-	check(err)
-	stats, err := trainSet.ComputeStats()
-	check(err)
-	trainSet.Stats, testSet.Stats = stats, stats
-	trainSet.Aug, trainSet.Seed = datasets.DefaultAugment(), 1
+	fmt.Printf("trained %d epochs (best %d): validation fold %.3f, test fold %.3f (clips %.3f)\n",
+		tr.Epochs, tr.BestEpoch, tr.ValAccuracy, tr.TestAccuracy, tr.TestClipAccuracy)
 
-	// 3. Train (validating on the test fold here, to keep the example short;
-	// pipit train keeps a separate validation fold).
-	net, err := nn.Arch("separable", len(corpus.Classes), 1)
+	// 3. What it costs on the device, one inference per half second.
+	fm, err := pipit.LoadFloatModel(model)
 	check(err)
-	defer net.Close()
-	const epochs, batch = 60, 16
-	steps := int64(epochs * ((trainSet.Len() + batch - 1) / batch))
-	tr, err := nn.NewTrainer(net, &nn.SoftmaxCrossEntropy{Classes: len(corpus.Classes)}, nn.OptimizerConfig{Kind: nn.OptAdamW, WeightDecay: 1e-4},
-		nn.Schedule{Kind: nn.SchedCosine, Base: 0.005, WarmupSteps: steps / 10, TotalSteps: steps}, 1)
+	defer fm.Close()
+	cost := nn.Cost(fm.Net, 1)
+	profile, err := nn.LookupProfile("m4-half")
 	check(err)
-	hist, err := nn.Fit(tr, nn.FitConfig{Epochs: epochs, Batch: batch, Seed: 1}, trainSet, testSet, nil, nil)
-	check(err)
-	fmt.Printf("trained %d epochs; cost: %+v\n", len(hist), costLine(net))
+	verdict := cost.Check(profile, 2)
+	fmt.Printf("cost: %d MACs, %d parameters, %d B RAM (int8); fits %s: %v\n", cost.MACs, cost.Params, cost.RAMBytes, profile.Name, verdict.Fits)
 
-	// 4. int8: calibrate on the training windows, compare on the test fold.
-	in := trainSet.InputSize()
-	x := make([]float32, trainSet.Len()*in)
-	y := make([]int, trainSet.Len())
-	trainSet.Aug = nil
-	for i := range y {
-		y[i] = trainSet.Sample(i, 0, x[i*in:(i+1)*in])
+	// 4. int8: calibrate on the validation fold, compare on the test fold.
+	qr, err := pipit.Quantize(fm, pipit.QuantizeConfig{Data: data, Out: filepath.Join(dir, "model.pq8")}, nil)
+	check(err)
+	fmt.Printf("test fold: float %.3f, int8 %.3f (ranges by %s, logit correlation %.4f)\n", qr.FloatAccuracy, qr.Int8Accuracy, qr.Method, qr.LogitCorr)
+
+	// 5. Export for a device, and read it back on every test window.
+	e, err := pipit.Export(qr.Model, filepath.Join(dir, "export"))
+	check(err)
+	fmt.Printf("export: %d-byte blob (CRC-32 %s), %d-byte RAM pool, %d MACs, in %s\n", e.FlashBytes, e.CRC32, e.RAMBytes, e.MACs, e.Dir)
+	test, err := pipit.LoadFold(fm.ModelInfo, data, "", nil)
+	check(err)
+	inputs := pipit.Int8Inputs(qr.Model, test)
+	back, err := pipit.VerifyRoundTrip(qr.Model, e, inputs)
+	check(err)
+	fmt.Printf("read back: identical logits on all %d test windows\n", len(inputs))
+
+	// 6. The C runtime and the C front end against the Go engine.
+	cc, err := exec.LookPath("gcc")
+	if err != nil {
+		fmt.Println("no gcc: C checks skipped")
+		return
 	}
-	q, rep, err := quant.Quantize(net, x, len(y), y, quant.Config{})
+	check(pipit.VerifyC(back, e, inputs[:8], cc, filepath.Join(dir, "cref")))
+	fc, audio, err := pipit.VerifyCFrontEnd(qr.Model, test, cc, filepath.Join(dir, "cfe"))
 	check(err)
-	floatOK, int8OK := 0, 0
-	buf := make([]float32, in)
-	for i := 0; i < testSet.Len(); i++ {
-		label := testSet.Sample(i, 0, buf)
-		if argmax(net.Forward(buf, 1, false, nil)) == label {
-			floatOK++
-		}
-		if argmax(q.Run(buf)) == label {
-			int8OK++
-		}
+	fmt.Printf("C runtime: bit-exact on 8 windows at every layer; C front end: %d/%d features as Go's, %d/%d same predictions\n",
+		fc.Identical, fc.Values, fc.SamePredictions, fc.Windows)
+
+	// 7. Front end + network on an emulated Cortex-M4.
+	if _, err := cref.FindM4Tools(); err != nil {
+		fmt.Println("emulated Cortex-M4 skipped:", err)
+		return
 	}
-	n := float64(testSet.Len())
-	fmt.Printf("test fold: float %.3f, int8 %.3f (ranges by %s, logit correlation %.4f)\n", float64(floatOK)/n, float64(int8OK)/n, rep.Method, rep.LogitCorr)
-
-	// 5. Export for a device.
-	blob, scheme, err := quant.Export(q)
+	oc, err := pipit.Onchip(qr.Model, pipit.JoinAudio(audio[:4]), 2, 160, filepath.Join(dir, "m4"))
 	check(err)
-	js, err := scheme.MarshalScheme()
-	check(err)
-	check(os.WriteFile(filepath.Join(dir, "model.blob"), blob, 0o644))
-	check(os.WriteFile(filepath.Join(dir, "model.scheme.json"), js, 0o644))
-	fmt.Printf("export: %d-byte blob (CRC-32 %s), %d-byte RAM pool, %d MACs, in %s\n", len(blob), scheme.Blob.CRC32, scheme.Memory.PoolBytes, scheme.Totals.MACs, dir)
-}
-
-func costLine(net *nn.Network) string {
-	c := nn.Cost(net, 1)
-	return fmt.Sprintf("%d MACs, %d parameters, %d B RAM (int8)", c.MACs, c.Params, c.RAMBytes)
-}
-
-func argmax(v []float32) int {
-	best := 0
-	for i := range v {
-		if v[i] > v[best] {
-			best = i
-		}
-	}
-	return best
+	fmt.Printf("emulated Cortex-M4: logits bit-exact %v, %.2f instructions per MAC, stack %d B\n", oc.LogitsBitExact && oc.RecLogitsExact, oc.InstrPerMAC, oc.StackBytes)
 }
 
 func check(err error) {

@@ -27,6 +27,8 @@ type trainOptions struct {
 	lr, overlap                           float64
 	skipBad, noAugment                    bool
 	fe                                    features.Config
+	recipe                                recipeOptions
+	teacher                               string // this run's teacher model ("" none); set per fold from recipe.teacher
 }
 
 // trainReport is the JSON summary of a training run.
@@ -67,6 +69,7 @@ func addTrainFlags(cmd *cobra.Command, o *trainOptions) {
 	f.BoolVar(&o.skipBad, "skip-bad", false, "skip unreadable WAV files (reported by name) instead of failing")
 	f.BoolVar(&o.noAugment, "no-augment", false, "train without augmentation")
 	f.StringVar(&o.cacheDir, "cache", defaultCacheDir(), "feature cache directory (empty: no cache)")
+	addRecipeFlags(cmd, &o.recipe)
 }
 
 func defaultCacheDir() string {
@@ -110,6 +113,7 @@ reports mean ± standard deviation over folds.`,
 		}
 		stderr := cmd.ErrOrStderr()
 		if !cross {
+			o.teacher = o.recipe.teacher
 			rep, err := trainOne(o, corpus, o.testFold, o.valFold, o.out, stderr)
 			if err != nil {
 				return err
@@ -123,6 +127,9 @@ reports mean ± standard deviation over folds.`,
 		var reps []*trainReport
 		for k := 0; k < corpus.Folds; k++ {
 			fmt.Fprintf(stderr, "== fold %d of %d\n", k+1, corpus.Folds)
+			if o.recipe.teacher != "" {
+				o.teacher = fmt.Sprintf("%s.fold%d", o.recipe.teacher, k)
+			}
 			rep, err := trainOne(o, corpus, k, -1, fmt.Sprintf("%s.fold%d", o.out, k), stderr)
 			if err != nil {
 				return err
@@ -274,14 +281,22 @@ func trainOne(o *trainOptions, c *datasets.Corpus, testFold, valFold int, out st
 		trainSet.Aug, trainSet.Seed = datasets.DefaultAugment(), o.seed
 	}
 	steps := int64(o.epochs) * int64((trainSet.Len()+o.batch-1)/o.batch)
-	tr, err := nn.NewTrainer(net, &nn.SoftmaxCrossEntropy{Classes: len(c.Classes)},
-		nn.OptimizerConfig{Kind: nn.OptAdamW, WeightDecay: 1e-4, ClipNorm: 5},
-		nn.Schedule{Kind: nn.SchedCosine, Base: o.lr, WarmupSteps: min(steps/10, 100), TotalSteps: steps, Final: 0.02}, o.seed)
+	sched, err := o.recipe.sched(o.lr, steps)
+	if err != nil {
+		return nil, err
+	}
+	tr, err := nn.NewTrainer(net, &nn.SoftmaxCrossEntropy{Classes: len(c.Classes), Smoothing: o.recipe.smoothing},
+		nn.OptimizerConfig{Kind: nn.OptAdamW, WeightDecay: o.recipe.weightDecay, ClipNorm: 5}, sched, o.seed)
 	if err != nil {
 		return nil, err
 	}
 	info := &datasets.ModelInfo{Version: datasets.ModelInfoVersion, Arch: o.arch, Classes: c.Classes, FrontEnd: o.fe, Window: win, Stats: st,
 		TestFold: testFold, ValFold: valFold, Folds: c.Folds, FoldSeed: o.seed}
+	recipe, closeTeacher, err := o.recipe.fitRecipe(o.teacher, info)
+	if err != nil {
+		return nil, err
+	}
+	defer closeTeacher()
 	meta, err := info.Marshal()
 	if err != nil {
 		return nil, err
@@ -309,7 +324,7 @@ func trainOne(o *trainOptions, c *datasets.Corpus, testFold, valFold int, out st
 		hist = append(hist, e)
 		return writeTrainLog(logPath, pngPath, hist)
 	}
-	if _, err := nn.Fit(tr, nn.FitConfig{Epochs: o.epochs, Batch: o.batch, Patience: o.patience, Seed: o.seed}, trainSet, valSet, progress, onEpoch); err != nil {
+	if _, err := nn.Fit(tr, nn.FitConfig{Epochs: o.epochs, Batch: o.batch, Patience: o.patience, Seed: o.seed, Recipe: recipe}, trainSet, valSet, progress, onEpoch); err != nil {
 		return nil, err
 	}
 	// Fit restored the best epoch's parameters; evaluate them.

@@ -19,10 +19,10 @@ type SampleSource interface {
 
 // FitConfig configures [Fit].
 type FitConfig struct {
-	Epochs   int    // maximum epochs
-	Batch    int    // samples per step
-	Patience int    // stop after this many epochs without a better validation score; 0 = never
-	Seed     uint64 // shuffling
+	Epochs   int     // maximum epochs
+	Batch    int     // samples per step
+	Patience int     // stop after this many epochs without a better validation score; 0 = never
+	Seed     uint64  // shuffling
 	Recipe   *Recipe // mixup, balanced sampling, distillation; nil: none
 }
 

@@ -1,6 +1,8 @@
 package pipit
 
 import (
+	"bytes"
+	"encoding/json"
 	"fmt"
 	"io"
 	"math"
@@ -30,6 +32,17 @@ type Recipe struct {
 	ClipNorm    float64 // gradient norm clip; 0: none
 	Seed        uint64  // weights, shuffling, augmentation
 	NoAugment   bool    // train without augmentation
+	// Recipe elements (see nn.Recipe): mixup of log-mel windows and labels
+	// with λ ~ Beta(α, α) (0: off), label smoothing ε, the schedule after
+	// the warm-up (nn.SchedCosine, the default, or nn.SchedConstant),
+	// class-balanced epochs, and distillation from the float model file
+	// Teacher ("" none; with CrossValidate, Teacher + ".fold" + label).
+	MixupAlpha     float64
+	LabelSmoothing float64
+	Schedule       string
+	Balanced       bool
+	Teacher        string
+	Distill        nn.Distill
 }
 
 // DefaultRecipe returns the recipe of `pipit train`: 40 epochs of batches
@@ -38,7 +51,8 @@ type Recipe struct {
 // figures are starting points of our own choosing for the built-in
 // networks (common practice), not tuned optima.
 func DefaultRecipe() Recipe {
-	return Recipe{Epochs: 40, Batch: 32, Patience: 10, LR: 0.005, FinalLR: 0.02, WeightDecay: 1e-4, ClipNorm: 5, Seed: 1}
+	return Recipe{Epochs: 40, Batch: 32, Patience: 10, LR: 0.005, FinalLR: 0.02, WeightDecay: 1e-4, ClipNorm: 5, Seed: 1,
+		Schedule: nn.SchedCosine, Distill: nn.Distill{Temperature: 4, Weight: 0.5}}
 }
 
 // check validates the recipe, naming the field at fault.
@@ -60,9 +74,59 @@ func (r Recipe) check() error {
 // windows.
 func (r Recipe) trainer(net *nn.Network, classes, n int) (*nn.Trainer, error) {
 	steps := int64(r.Epochs) * int64((n+r.Batch-1)/r.Batch)
-	return nn.NewTrainer(net, &nn.SoftmaxCrossEntropy{Classes: classes},
+	kind := r.Schedule
+	if kind == "" {
+		kind = nn.SchedCosine
+	}
+	if kind != nn.SchedCosine && kind != nn.SchedConstant {
+		return nil, fmt.Errorf("pipit: recipe: schedule %q, want %s or %s", kind, nn.SchedCosine, nn.SchedConstant)
+	}
+	return nn.NewTrainer(net, &nn.SoftmaxCrossEntropy{Classes: classes, Smoothing: r.LabelSmoothing},
 		nn.OptimizerConfig{Kind: nn.OptAdamW, WeightDecay: r.WeightDecay, ClipNorm: r.ClipNorm},
-		nn.Schedule{Kind: nn.SchedCosine, Base: r.LR, WarmupSteps: min(steps/10, 100), TotalSteps: steps, Final: r.FinalLR}, r.Seed)
+		nn.Schedule{Kind: kind, Base: r.LR, WarmupSteps: min(steps/10, 100), TotalSteps: steps, Final: r.FinalLR}, r.Seed)
+}
+
+// fitRecipe builds the nn recipe of a run whose model info is info,
+// loading the teacher (if any) and checking that it was trained on the
+// same folds, classes, front end, window and band statistics, so that it
+// sees the same inputs and nothing of the test fold. close releases the
+// teacher.
+func (r Recipe) fitRecipe(info *datasets.ModelInfo) (rec *nn.Recipe, close func(), err error) {
+	rec = &nn.Recipe{MixupAlpha: r.MixupAlpha, Balanced: r.Balanced, Distill: r.Distill}
+	if r.Teacher == "" {
+		return rec, func() {}, nil
+	}
+	m, err := LoadModel(r.Teacher)
+	if err != nil {
+		return nil, nil, err
+	}
+	fm, ok := m.(*FloatModel)
+	if !ok {
+		m.Close()
+		return nil, nil, fmt.Errorf("pipit: teacher %s: an int8 model cannot teach; give the float model", r.Teacher)
+	}
+	t := fm.ModelInfo
+	same := func(a, b any) bool {
+		x, _ := json.Marshal(a)
+		y, _ := json.Marshal(b)
+		return bytes.Equal(x, y)
+	}
+	switch {
+	case t.TestFold != info.TestFold || t.ValFold != info.ValFold:
+		err = fmt.Errorf("test fold %s, validation fold %s; this run has %s, %s", t.TestFold, t.ValFold, info.TestFold, info.ValFold)
+	case !same(t.Classes, info.Classes):
+		err = fmt.Errorf("classes %v; this run has %v", t.Classes, info.Classes)
+	case !same(t.FrontEnd, info.FrontEnd) || !same(t.Window, info.Window):
+		err = fmt.Errorf("another front end or window")
+	case !same(t.Stats, info.Stats):
+		err = fmt.Errorf("other band statistics (trained on other clips)")
+	}
+	if err != nil {
+		m.Close()
+		return nil, nil, fmt.Errorf("pipit: teacher %s: %w", r.Teacher, err)
+	}
+	rec.Teacher = fm.Net
+	return rec, m.Close, nil
 }
 
 // TrainConfig configures [Train].
@@ -205,6 +269,11 @@ func Train(c *datasets.Corpus, cfg TrainConfig, rep Reporter) (*TrainResult, err
 	if err != nil {
 		return nil, err
 	}
+	fitRec, closeTeacher, err := cfg.Recipe.fitRecipe(info)
+	if err != nil {
+		return nil, err
+	}
+	defer closeTeacher()
 	ckpt := cfg.Checkpoint
 	if ckpt == "" {
 		ckpt = cfg.Out
@@ -238,7 +307,7 @@ func Train(c *datasets.Corpus, cfg TrainConfig, rep Reporter) (*TrainResult, err
 		return nil
 	}
 	r := cfg.Recipe
-	if _, err := nn.Fit(tr, nn.FitConfig{Epochs: r.Epochs, Batch: r.Batch, Patience: r.Patience, Seed: r.Seed}, trainSet, valSet, progress, onEpoch); err != nil {
+	if _, err := nn.Fit(tr, nn.FitConfig{Epochs: r.Epochs, Batch: r.Batch, Patience: r.Patience, Seed: r.Seed, Recipe: fitRec}, trainSet, valSet, progress, onEpoch); err != nil {
 		return nil, err
 	}
 	if ckpt != cfg.Out {
@@ -305,10 +374,13 @@ func CrossValidate(c *datasets.Corpus, cfg TrainConfig, rep Reporter) (*CrossVal
 	rep = orQuiet(rep)
 	cv := &CrossValidation{}
 	var a, b, v []float64
-	out := cfg.Out
+	out, teacher := cfg.Out, cfg.Recipe.Teacher
 	for k := 0; k < c.Folds; k++ {
 		rep.Note(fmt.Sprintf("== fold %s (%d of %d)", c.FoldLabel(k), k+1, c.Folds))
 		cfg.TestFold, cfg.ValFold, cfg.Out = c.FoldLabel(k), "", out+".fold"+c.FoldLabel(k)
+		if teacher != "" {
+			cfg.Recipe.Teacher = teacher + ".fold" + c.FoldLabel(k)
+		}
 		if cfg.Checkpoint != "" {
 			cfg.Checkpoint = cfg.Out + ".partial"
 		}

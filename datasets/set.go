@@ -364,3 +364,6 @@ func (s *Set) ClassCounts() []int {
 	}
 	return n
 }
+
+// Label returns window i's class index without building its input.
+func (s *Set) Label(i int) int { return s.Windows[i].Label }

@@ -36,7 +36,11 @@ type SynthConfig struct {
 	Folds         int     // default 5
 	Seed          uint64
 	// SNR range of the source over the background noise, dB; default 0..20.
+	// The hard corpus has its own ranges and ignores these.
 	MinSNRdB, MaxSNRdB float64
+	// Hard selects the hard corpus: [HardSynthClasses] drawn by
+	// [HardSynthClip], class k getting ClipsPerClass·0.4^(k/(K−1)) clips.
+	Hard bool
 }
 
 func (c *SynthConfig) defaults() {
@@ -374,19 +378,28 @@ func Synthesize(dir string, cfg SynthConfig, progress func(done, total int)) (*C
 		return nil, corpusErr("clip length %g s outside 0.1..600", cfg.Seconds)
 	case cfg.RateHz < 4000 || cfg.RateHz > 192000:
 		return nil, corpusErr("rate %d Hz outside 4000..192000", cfg.RateHz)
-	case cfg.Folds < 2 || cfg.Folds > cfg.ClipsPerClass*len(SynthClasses):
-		return nil, corpusErr("%d folds for %d clips", cfg.Folds, cfg.ClipsPerClass*len(SynthClasses))
 	}
-	c := &Corpus{Source: filepath.Join(dir, "manifest.csv"), Classes: append([]string(nil), SynthClasses...)}
-	total := cfg.ClipsPerClass * len(SynthClasses)
-	for k, name := range SynthClasses {
+	classes, clip, count := SynthClasses, SynthClip, func(int) int { return cfg.ClipsPerClass }
+	if cfg.Hard {
+		classes, clip = HardSynthClasses, HardSynthClip
+		count = func(k int) int { return hardClipsForClass(cfg.ClipsPerClass, k, len(HardSynthClasses)) }
+	}
+	total := 0
+	for k := range classes {
+		total += count(k)
+	}
+	if cfg.Folds < 2 || cfg.Folds > total {
+		return nil, corpusErr("%d folds for %d clips", cfg.Folds, total)
+	}
+	c := &Corpus{Source: filepath.Join(dir, "manifest.csv"), Classes: append([]string(nil), classes...)}
+	for k, name := range classes {
 		if err := os.MkdirAll(filepath.Join(dir, name), 0o755); err != nil {
 			return nil, fmt.Errorf("datasets: %w", err)
 		}
-		for i := 0; i < cfg.ClipsPerClass; i++ {
+		for i := 0; i < count(k); i++ {
 			// one RNG per clip, so any clip can be regenerated alone
 			rng := rand.New(rand.NewPCG(cfg.Seed, uint64(k)<<32|uint64(i)))
-			x := SynthClip(k, cfg, rng)
+			x := clip(k, cfg, rng)
 			rel := filepath.Join(name, fmt.Sprintf("%s_%03d.wav", name, i))
 			if err := features.WriteWAVFile(filepath.Join(dir, rel), x, cfg.RateHz); err != nil {
 				return nil, err

@@ -19,10 +19,11 @@ type SampleSource interface {
 
 // FitConfig configures [Fit].
 type FitConfig struct {
-	Epochs   int    // maximum epochs
-	Batch    int    // samples per step
-	Patience int    // stop after this many epochs without a better validation score; 0 = never
-	Seed     uint64 // shuffling
+	Epochs   int     // maximum epochs
+	Batch    int     // samples per step
+	Patience int     // stop after this many epochs without a better validation score; 0 = never
+	Seed     uint64  // shuffling
+	Recipe   *Recipe // mixup, balanced sampling, distillation; nil: none
 }
 
 // EpochStats reports one epoch of [Fit].
@@ -71,6 +72,26 @@ func Fit(tr *Trainer, cfg FitConfig, train, val SampleSource, progress FitProgre
 	for i := range order {
 		order[i] = i
 	}
+	var rs *recipeState
+	var labels []int
+	if cfg.Recipe != nil {
+		if err := cfg.Recipe.Check(tr.Net.Input, tr.Loss.Classes); err != nil {
+			return nil, err
+		}
+		if cfg.Recipe.soft() {
+			rs = newRecipeState(cfg.Recipe, cfg.Batch, in, tr.Loss.Classes, cfg.Seed)
+		}
+		if cfg.Recipe.Balanced {
+			lb, ok := train.(Labeler)
+			if !ok {
+				return nil, fmt.Errorf("nn: balanced sampling needs a training set that reports labels")
+			}
+			labels = make([]int, n)
+			for i := range labels {
+				labels[i] = lb.Label(i)
+			}
+		}
+	}
 	bestData := append([]float32(nil), tr.Net.Params.Data...)
 	bestState := append([]float32(nil), tr.Net.Params.State...)
 	bestAcc, bestLoss := math.Inf(-1), math.Inf(1)
@@ -79,7 +100,11 @@ func Fit(tr *Trainer, cfg FitConfig, train, val SampleSource, progress FitProgre
 	steps := (n + cfg.Batch - 1) / cfg.Batch
 	for ep := 1; ep <= cfg.Epochs; ep++ {
 		t0 := time.Now()
-		rng.Shuffle(n, func(i, j int) { order[i], order[j] = order[j], order[i] })
+		if labels != nil {
+			BalancedOrder(order, labels, rng)
+		} else {
+			rng.Shuffle(n, func(i, j int) { order[i], order[j] = order[j], order[i] })
+		}
 		var lossSum float64
 		var correct, seen int
 		var lr float64
@@ -98,7 +123,13 @@ func Fit(tr *Trainer, cfg FitConfig, train, val SampleSource, progress FitProgre
 		for s := 0; s < steps; s++ {
 			k := <-ready
 			bb := &bufs[k]
-			r, err := tr.Step(bb.x[:bb.n*in], bb.y[:bb.n])
+			var r StepResult
+			var err error
+			if rs != nil {
+				r, err = rs.step(tr, bb.x[:bb.n*in], bb.y[:bb.n])
+			} else {
+				r, err = tr.Step(bb.x[:bb.n*in], bb.y[:bb.n])
+			}
 			free <- k
 			if err != nil {
 				stepErr = fmt.Errorf("nn: epoch %d step %d: %w", ep, s+1, err)

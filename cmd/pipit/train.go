@@ -65,6 +65,7 @@ reports mean ± standard deviation over folds.`,
 	f.BoolVar(&cfg.SkipBad, "skip-bad", false, "skip unreadable WAV files (reported by name) instead of failing")
 	f.BoolVar(&r.NoAugment, "no-augment", false, "train without augmentation")
 	f.StringVar(&cfg.CacheDir, "cache", defaultCacheDir(), "feature cache directory (empty: no cache)")
+	addRecipeFlags(cmd, r)
 	fe := addFrontEndFlags(cmd)
 	f.BoolVar(&cross, "cross-validate", false, "train one model per fold and report mean ± std")
 	f.BoolVar(&asJSON, "json", false, "print the final report as JSON")

@@ -89,15 +89,6 @@ func newTask(w io.Writer, label string) *task {
 	return t
 }
 
-// startAt moves the task's start back to t (work done before the task
-// was created).
-func (t *task) startAt(at time.Time) {
-	t.start = at
-	if !t.con.tty {
-		t.last = at
-	}
-}
-
 // step reports that done of total units are finished, with a note; the
 // time to go is extrapolated from the time so far. Reports closer than
 // liveEvery (terminal) or plainEvery (elsewhere) to the previous one are
@@ -121,14 +112,6 @@ func (t *task) step(done, total int, unit, note string) {
 		line += ", " + span(rest) + " to go"
 	}
 	t.con.status(line)
-}
-
-// show puts "label: note" in the status line of a terminal (elsewhere
-// it prints nothing: the closing line follows).
-func (t *task) show(note string) {
-	if t.con.tty {
-		t.con.status(t.label + ": " + note)
-	}
 }
 
 // finish ends the task with a closing line: the label, the note and the

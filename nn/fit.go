@@ -123,21 +123,22 @@ func Fit(tr *Trainer, cfg FitConfig, train, val SampleSource, progress FitProgre
 		for s := 0; s < steps; s++ {
 			k := <-ready
 			bb := &bufs[k]
+			b := bb.n // read before the buffer goes back to the producer
 			var r StepResult
 			var err error
 			if rs != nil {
-				r, err = rs.step(tr, bb.x[:bb.n*in], bb.y[:bb.n])
+				r, err = rs.step(tr, bb.x[:b*in], bb.y[:b])
 			} else {
-				r, err = tr.Step(bb.x[:bb.n*in], bb.y[:bb.n])
+				r, err = tr.Step(bb.x[:b*in], bb.y[:b])
 			}
 			free <- k
 			if err != nil {
 				stepErr = fmt.Errorf("nn: epoch %d step %d: %w", ep, s+1, err)
 				break
 			}
-			lossSum += r.Loss * float64(bb.n)
+			lossSum += r.Loss * float64(b)
 			correct += r.Correct
-			seen += bb.n
+			seen += b
 			lr = r.LR
 			if progress != nil {
 				progress(ep, s+1, steps, lossSum/float64(seen), float64(correct)/float64(seen), seen, time.Since(t0).Seconds())

@@ -27,6 +27,7 @@ type trainOptions struct {
 	lr, overlap                           float64
 	skipBad, noAugment                    bool
 	fe                                    features.Config
+	spec                                  string // layer spec with input line; when set, used instead of arch (pipit sweep)
 }
 
 // trainReport is the JSON summary of a training run.
@@ -212,7 +213,13 @@ func trainOne(o *trainOptions, c *datasets.Corpus, testFold, valFold int, out st
 	if valFold >= c.Folds || valFold == testFold {
 		return nil, fmt.Errorf("--val-fold %d: want a fold in 0..%d other than the test fold %d", valFold, c.Folds-1, testFold)
 	}
-	net, err := loadArch(o.arch, len(c.Classes), o.seed)
+	var net *nn.Network
+	var err error
+	if o.spec != "" {
+		net, err = nn.FromSpec(o.spec, nn.Shape{}, o.seed)
+	} else {
+		net, err = loadArch(o.arch, len(c.Classes), o.seed)
+	}
 	if err != nil {
 		return nil, err
 	}

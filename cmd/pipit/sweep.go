@@ -221,4 +221,3 @@ fit, and draws it (--png, default DIR/front.png).`,
 	}
 	return cmd
 }
-

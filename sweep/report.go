@@ -207,7 +207,10 @@ func (r *Report) WriteTable(w io.Writer) error {
 		}
 		gap := "–"
 		if x.Gap != nil {
-			gap = fmt.Sprintf("%+.3f", -*x.Gap)
+			gap = fmt.Sprintf("%+.3f", 0-*x.Gap+0) // +0: no "-0.000"
+			if gap == "-0.000" {
+				gap = "+0.000"
+			}
 		}
 		fits := "yes"
 		if !x.Fits {

@@ -31,7 +31,7 @@ func newRootCmd(stdout, stderr io.Writer) *cobra.Command {
 	}
 	root.SetOut(stdout)
 	root.SetErr(stderr)
-	root.AddCommand(newMelspecCmd(), newBudgetCmd(), newSynthCmd(), newTrainCmd(), newEvalCmd(), newQuantizeCmd(), newExportCmd(), newTimelineCmd(), newLogbookCmd(), newDemoCmd(), newOnchipCmd())
+	root.AddCommand(newMelspecCmd(), newBudgetCmd(), newSynthCmd(), newTrainCmd(), newEvalCmd(), newQuantizeCmd(), newExportCmd(), newTimelineCmd(), newLogbookCmd(), newDemoCmd(), newOnchipCmd(), newSweepCmd())
 	return root
 }
 

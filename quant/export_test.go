@@ -7,6 +7,9 @@ import (
 	"hash/crc32"
 	"math/rand/v2"
 	"os/exec"
+	"regexp"
+	"strconv"
+	"strings"
 	"testing"
 
 	"github.com/pipit-audio/pipit/nn"
@@ -171,5 +174,60 @@ func TestCReferenceBitExact(t *testing.T) {
 			}
 		}
 		net.Close()
+	}
+}
+
+// The C runtime's check verifies the blob's CRC-32 and the layer table's
+// offsets against the blob and the pool, and reads the blob version from
+// pipit_rt.h, which must equal BlobVersion (issue #11: the CRC was not
+// checked, the version hard-coded and the offsets trusted).
+func TestCRuntimeCheckRefusesDamage(t *testing.T) {
+	m := regexp.MustCompile(`#define PIPIT_BLOB_VERSION (\d+)`).FindSubmatch(cref.RuntimeHeader)
+	if m == nil || string(m[1]) != strconv.Itoa(BlobVersion) {
+		t.Errorf("pipit_rt.h defines PIPIT_BLOB_VERSION %q, quant.BlobVersion is %d", m, BlobVersion)
+	}
+	cc, err := exec.LookPath("gcc")
+	if err != nil {
+		t.Skip("no gcc on PATH; .ci/run installs it")
+	}
+	net, q, blob, doc, _ := exportedModel(t, "separable")
+	defer net.Close()
+	sample := [][]int8{make([]int8, q.Input.Size())}
+	var sizes []int
+	for _, l := range q.Layers {
+		sizes = append(sizes, l.OutShape.Size())
+	}
+	run := func(header string) error {
+		exe, err := cref.Build(t.TempDir(), header, "net", cc, true)
+		if err != nil {
+			t.Fatal(err)
+		}
+		_, err = cref.Run(exe, sample, sizes)
+		return err
+	}
+	if err := run(CHeader(blob, doc, "net")); err != nil {
+		t.Fatalf("intact model refused: %v", err)
+	}
+	// One weight byte flipped (the stored CRC no longer matches).
+	damaged := append([]byte(nil), blob...)
+	damaged[doc.Layers[0].Sections["weights"].Offset] ^= 1
+	if err := run(CHeader(damaged, doc, "net")); err == nil || !strings.Contains(err.Error(), "pipit_check: -5") {
+		t.Errorf("damaged blob: %v, want pipit_check to return PIPIT_ERR_CRC (-5)", err)
+	}
+	// A layer whose bias section lies past the end of the blob.
+	var bad SchemeDoc
+	js, _ := doc.MarshalScheme()
+	json.Unmarshal(js, &bad)
+	sec := bad.Layers[0].Sections["bias"]
+	sec.Offset = len(blob) - 2
+	bad.Layers[0].Sections["bias"] = sec
+	if err := run(CHeader(blob, &bad, "net")); err == nil || !strings.Contains(err.Error(), "pipit_check: -4") {
+		t.Errorf("bias past the blob: %v, want PIPIT_ERR_TABLE (-4)", err)
+	}
+	// A layer writing past the pool.
+	json.Unmarshal(js, &bad)
+	bad.Memory.Buffers[1].Offset = bad.Memory.PoolBytes
+	if err := run(CHeader(blob, &bad, "net")); err == nil || !strings.Contains(err.Error(), "pipit_check: -4") {
+		t.Errorf("output past the pool: %v, want PIPIT_ERR_TABLE (-4)", err)
 	}
 }

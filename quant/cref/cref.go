@@ -43,8 +43,12 @@ int main(int argc, char **argv) {
   size_t in_size = (size_t)%[2]s_INPUT_H * %[2]s_INPUT_W * %[2]s_INPUT_C;
   int8_t *pool, *sample;
   FILE *fi, *fo;
-  int i;
-  if (argc != 3 || pipit_check(m) != PIPIT_OK) return 2;
+  int i, r;
+  if (argc != 3) return 2;
+  if ((r = pipit_check(m)) != PIPIT_OK) {
+    fprintf(stderr, "pipit_check: %%d\n", r);
+    return 2;
+  }
   pool = (int8_t *)malloc(%[2]s_POOL_BYTES);
   sample = (int8_t *)malloc(in_size);
   fi = fopen(argv[1], "rb");

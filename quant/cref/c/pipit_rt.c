@@ -47,13 +47,75 @@ static int32_t round_div(int32_t a, int32_t b) {
   return -((-a + b / 2) / b);
 }
 
-int pipit_check(const pipit_model_t *m) {
+/* CRC-32 (IEEE 802.3, reflected polynomial 0xEDB88320), bit by bit: no
+ * table, so no RAM or flash beyond the code. */
+static uint32_t crc32_ieee(const uint8_t *p, int32_t n) {
+  uint32_t c = 0xFFFFFFFFu;
+  int32_t i;
+  int k;
+  for (i = 0; i < n; i++) {
+    c ^= p[i];
+    for (k = 0; k < 8; k++) c = (c >> 1) ^ (0xEDB88320u & (0u - (c & 1u)));
+  }
+  return ~c;
+}
+
+/* The cheap part of the check, run before every inference. */
+static int check_header(const pipit_model_t *m) {
   static const char magic[8] = {'P', 'I', 'P', 'I', 'T', 'B', 'L', 'B'};
   int i;
   if (m->blob_bytes < 24) return PIPIT_ERR_BLOB;
   for (i = 0; i < 8; i++)
     if (m->blob[i] != (uint8_t)magic[i]) return PIPIT_ERR_BLOB;
-  if (rd32(m->blob + 8) != 1 || rd32(m->blob + 12) != m->blob_bytes) return PIPIT_ERR_BLOB;
+  if (rd32(m->blob + 8) != PIPIT_BLOB_VERSION || rd32(m->blob + 12) != m->blob_bytes) return PIPIT_ERR_BLOB;
+  return PIPIT_OK;
+}
+
+/* [off, off + len) lies inside [0, size). */
+static int inside(int32_t off, int64_t len, int32_t size) { return off >= 0 && len >= 0 && (int64_t)off + len <= (int64_t)size; }
+
+static int check_layer(const pipit_model_t *m, const pipit_layer_t *l) {
+  const int64_t in = (int64_t)l->in_shape[0] * l->in_shape[1] * l->in_shape[2];
+  const int64_t out = (int64_t)l->out_shape[0] * l->out_shape[1] * l->out_shape[2];
+  int64_t weights = 0, channels = 0;
+  int i;
+  for (i = 0; i < 3; i++)
+    if (l->in_shape[i] < 1 || l->out_shape[i] < 1) return PIPIT_ERR_TABLE;
+  if (!inside(l->in_offset, in, m->pool_bytes) || !inside(l->out_offset, out, m->pool_bytes)) return PIPIT_ERR_TABLE;
+  switch (l->op) {
+  case PIPIT_OP_CONV:
+    channels = l->out_shape[2];
+    weights = channels * l->kernel[0] * l->kernel[1] * l->in_shape[2];
+    break;
+  case PIPIT_OP_DEPTHWISE:
+    channels = l->out_shape[2];
+    weights = (int64_t)l->kernel[0] * l->kernel[1] * l->in_shape[2];
+    if (l->in_shape[2] != channels) return PIPIT_ERR_TABLE;
+    break;
+  case PIPIT_OP_DENSE:
+    channels = out;
+    weights = in * out;
+    break;
+  case PIPIT_OP_MAXPOOL:
+  case PIPIT_OP_AVGPOOL:
+  case PIPIT_OP_GLOBALAVGPOOL:
+    return PIPIT_OK;
+  default:
+    return PIPIT_ERR_TABLE;
+  }
+  if (l->weights_length != weights || !inside(l->weights_offset, weights, m->blob_bytes) || !inside(l->bias_offset, 4 * channels, m->blob_bytes) ||
+      !inside(l->mult_offset, 4 * channels, m->blob_bytes) || !inside(l->shift_offset, 4 * channels, m->blob_bytes))
+    return PIPIT_ERR_TABLE;
+  return PIPIT_OK;
+}
+
+int pipit_check(const pipit_model_t *m) {
+  int i, r;
+  if ((r = check_header(m)) != PIPIT_OK) return r;
+  if (crc32_ieee(m->blob + 20, m->blob_bytes - 20) != (uint32_t)rd32(m->blob + 16)) return PIPIT_ERR_CRC;
+  if (m->num_layers < 1 || m->pool_bytes < 1) return PIPIT_ERR_TABLE;
+  for (i = 0; i < m->num_layers; i++)
+    if ((r = check_layer(m, &m->layers[i])) != PIPIT_OK) return r;
   return PIPIT_OK;
 }
 
@@ -166,7 +228,7 @@ int pipit_run_layer(const pipit_model_t *m, int i, int8_t *pool) {
 int pipit_run(const pipit_model_t *m, int8_t *pool, size_t pool_bytes) {
   int i, r;
   if (pool_bytes < (size_t)m->pool_bytes) return PIPIT_ERR_POOL;
-  if ((r = pipit_check(m)) != PIPIT_OK) return r;
+  if ((r = check_header(m)) != PIPIT_OK) return r;
   for (i = 0; i < m->num_layers; i++)
     if ((r = pipit_run_layer(m, i, pool)) != PIPIT_OK) return r;
   return PIPIT_OK;

@@ -53,11 +53,18 @@ typedef struct {
   int32_t pool_bytes;
 } pipit_model_t;
 
+/* The blob format version this runtime reads (quant.BlobVersion; a Go
+ * test keeps the two equal, and every generated model header refuses to
+ * compile against a runtime of another version). */
+#define PIPIT_BLOB_VERSION 1
+
 /* Status codes. */
 #define PIPIT_OK 0
 #define PIPIT_ERR_LAYER (-1)  /* layer index or op out of range */
 #define PIPIT_ERR_POOL (-2)   /* pool smaller than the plan */
-#define PIPIT_ERR_BLOB (-3)   /* bad blob header */
+#define PIPIT_ERR_BLOB (-3)   /* bad blob header: magic, version, length */
+#define PIPIT_ERR_TABLE (-4)  /* a layer's shapes, blob sections or pool offsets out of range */
+#define PIPIT_ERR_CRC (-5)    /* the blob's CRC-32 does not match: damaged */
 
 /* Fixed-point helpers (docs/export-format.md, "Arithmetic"; Jacob et al.
  * 2018, eqs. 5-6):
@@ -69,14 +76,19 @@ int32_t pipit_mul_q31(int32_t a, int32_t b);
 int32_t pipit_shr_round(int32_t x, int exponent);
 int32_t pipit_requant(int32_t acc, int32_t m0, int32_t shift);
 
-/* Checks the blob magic, version and length. */
+/* Checks the whole model once, at start-up: the blob's magic, version
+ * (PIPIT_BLOB_VERSION), length and CRC-32, and every layer of the table
+ * (op, shapes, weight count, blob sections and pool offsets in range).
+ * pipit_run then checks only the header, so an inference does not pay for
+ * the CRC. */
 int pipit_check(const pipit_model_t *m);
 /* Where the input goes and the output comes from, inside the pool. */
 int8_t *pipit_input(const pipit_model_t *m, int8_t *pool);
 const int8_t *pipit_output(const pipit_model_t *m, const int8_t *pool);
 /* Runs layer i (reading its input from the pool, writing its output). */
 int pipit_run_layer(const pipit_model_t *m, int i, int8_t *pool);
-/* Runs every layer; pool_bytes must be at least m->pool_bytes. */
+/* Runs every layer; pool_bytes must be at least m->pool_bytes. It checks
+ * the blob header (not the CRC or the table: call pipit_check first). */
 int pipit_run(const pipit_model_t *m, int8_t *pool, size_t pool_bytes);
 
 #endif

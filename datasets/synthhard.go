@@ -50,8 +50,8 @@ func hardClipsForClass(n, k, classes int) int {
 // HardSynthClip generates one clip of class (an index into
 // HardSynthClasses). The event covers 35–100 % of the clip starting
 // anywhere in it; with probability 0.45 a weaker event of another class
-// (8–20 dB below) overlaps it; both pass through one room impulse response
-// (see [roomImpulse]), a microphone-and-housing colouring (a high-pass, a
+// (8–20 dB below) overlaps it; both pass through one room response (the decaying sound of one click)
+// (see [roomResponse]), a microphone-and-housing colouring (a high-pass, a
 // housing resonance and the demo's spectral tilt), and sit on pink noise
 // with a mains-frequency hum at an SNR of 0 to 15 dB. The peak level is
 // drawn uniformly in dB over −33 … −3 dB re full scale. It is
@@ -251,7 +251,7 @@ func synthForklift(x []float64, fs float64, rng *rand.Rand) {
 	}
 }
 
-// roomImpulse returns a room impulse response after the statistical model
+// roomResponse returns a room response (the decaying sound of one click) after the statistical model
 // of late reverberation as exponentially decaying Gaussian noise (Polack
 // 1988; Jot, Cerveau & Warusfel 1997, AES 103rd Convention, preprint 4629)
 // (from memory): a unit direct path, then from a delay of 2–10 ms noise
@@ -259,7 +259,7 @@ func synthForklift(x []float64, fs float64, rng *rand.Rand) {
 // in RT60 seconds (the definition of RT60, ISO 3382-2:2008 §3.5), cut at
 // −60 dB and at 0.5 s, scaled to the direct-to-reverberant energy ratio
 // drr dB.
-func roomImpulse(fs, rt60, drr float64, rng *rand.Rand) []float64 {
+func roomResponse(fs, rt60, drr float64, rng *rand.Rand) []float64 {
 	n := int(math.Min(rt60, 0.5) * fs)
 	h := make([]float64, n)
 	h[0] = 1
@@ -279,10 +279,10 @@ func roomImpulse(fs, rt60, drr float64, rng *rand.Rand) []float64 {
 	return h
 }
 
-// reverberate convolves x with a room impulse of RT60 0.2–1 s and DRR
+// reverberate convolves x with a room response of RT60 0.2–1 s and DRR
 // −4…10 dB drawn from rng, by FFT, and returns the first len(x) samples.
 func reverberate(x []float64, fs float64, rng *rand.Rand) []float64 {
-	h := roomImpulse(fs, uniform(rng, hardMinRT60, hardMaxRT60), uniform(rng, hardMinDRRdB, hardMaxDRRdB), rng)
+	h := roomResponse(fs, uniform(rng, hardMinRT60, hardMaxRT60), uniform(rng, hardMinDRRdB, hardMaxDRRdB), rng)
 	return convolveFFT(x, h)
 }
 

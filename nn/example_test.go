@@ -73,3 +73,31 @@ func Example_trainTiny() {
 	// Output:
 	// accuracy on the last batch: 16/16
 }
+
+// BalancedOrder draws an epoch in which a skewed training set's classes
+// appear equally often.
+func ExampleBalancedOrder() {
+	labels := []int{0, 0, 0, 0, 0, 0, 0, 0, 1, 2} // 8, 1 and 1 samples
+	order := make([]int, len(labels))
+	nn.BalancedOrder(order, labels, rand.New(rand.NewPCG(1, 2)))
+	perClass := make([]int, 3)
+	for _, i := range order {
+		perClass[labels[i]]++
+	}
+	fmt.Println(perClass[0]+perClass[1]+perClass[2], "places; each class 3 or 4:", perClass[0] >= 3 && perClass[1] >= 3 && perClass[2] >= 3)
+	// Output: 10 places; each class 3 or 4: true
+}
+
+// Mixup blends a batch with itself; the targets stay distributions.
+func ExampleMixup() {
+	const n, in, classes = 4, 3, 2
+	x := make([]float32, n*in)
+	targets := make([]float32, n*classes)
+	nn.OneHot(targets, []int{0, 1, 1, 0}, classes)
+	perm := make([]int, n)
+	nn.Mixup(x, targets, make([]float32, n*in), n, in, classes, 0.4, perm, rand.New(rand.NewPCG(3, 4)))
+	for i := 0; i < n; i++ {
+		fmt.Printf("%.3f ", targets[2*i]+targets[2*i+1])
+	}
+	// Output: 1.000 1.000 1.000 1.000
+}

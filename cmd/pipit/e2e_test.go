@@ -52,6 +52,19 @@ func TestSynthTrainEval(t *testing.T) {
 	if ev.Fold != "0" || ev.ClipAccuracy != rep.TestClipAccuracy || ev.Accuracy != rep.TestAccuracy {
 		t.Errorf("eval on fold %s: accuracy %.3f / clips %.3f; train reported %.3f / %.3f", ev.Fold, ev.Accuracy, ev.ClipAccuracy, rep.TestAccuracy, rep.TestClipAccuracy)
 	}
+	// an ensemble of the model with itself is the model: mean of equal
+	// probabilities (and each copy normalises with the same statistics)
+	out, err = run(t, "eval", "--model", model, "--with", model, "--data", manifest, "--cache", cache, "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var ens evalReport
+	if err := json.Unmarshal([]byte(out), &ens); err != nil {
+		t.Fatal(err)
+	}
+	if len(ens.With) != 1 || ens.Accuracy != ev.Accuracy || ens.ClipAccuracy != ev.ClipAccuracy {
+		t.Errorf("ensemble of the model with itself: accuracy %.3f / %.3f (with %v), the model alone %.3f / %.3f", ens.Accuracy, ens.ClipAccuracy, ens.With, ev.Accuracy, ev.ClipAccuracy)
+	}
 	elapsed := time.Since(t0)
 	t.Logf("synth → train → eval: %.1f s; test clip accuracy %.3f", elapsed.Seconds(), rep.TestClipAccuracy)
 

@@ -3,6 +3,7 @@ package main
 import (
 	"fmt"
 	"io"
+	"strings"
 
 	"github.com/spf13/cobra"
 
@@ -13,10 +14,11 @@ import (
 
 // evalReport is the JSON report of eval.
 type evalReport struct {
-	Model string `json:"model"`
-	Data  string `json:"data"`
-	Fold  string `json:"fold"` // fold label, or "all"
-	PNG   string `json:"confusion_png"`
+	Model string   `json:"model"`
+	Data  string   `json:"data"`
+	Fold  string   `json:"fold"` // fold label, or "all"
+	PNG   string   `json:"confusion_png"`
+	With  []string `json:"ensemble_with,omitempty"` // further models averaged with Model
 	*pipit.Evaluation
 }
 
@@ -24,6 +26,7 @@ func newEvalCmd() *cobra.Command {
 	var model, data, group, png, cacheDir string
 	var fold string
 	var asJSON, skipBad bool
+	var with []string
 	cmd := &cobra.Command{
 		Use:   "eval --model MODEL --data MANIFEST|FOLDER",
 		Short: "Evaluate a float or int8 model: accuracy, recall, precision and F1 by class, confusion matrix",
@@ -31,7 +34,11 @@ func newEvalCmd() *cobra.Command {
 for testing) and reports accuracy, balanced accuracy, per-class precision,
 recall and F1 and the confusion matrix, for windows and for whole clips
 (by mean window probability and by majority vote); the window-level
-confusion matrix is also drawn as a PNG.`,
+confusion matrix is also drawn as a PNG.
+With --with MODEL2 (repeatable) it evaluates the ensemble of MODEL and the
+others, the mean of their window probabilities; a device runs one model
+(export takes one), so this says what averaging would buy at N times the
+inference cost.`,
 		Args: cobra.NoArgs,
 	}
 	f := cmd.Flags()
@@ -43,6 +50,7 @@ confusion matrix is also drawn as a PNG.`,
 	f.StringVar(&cacheDir, "cache", defaultCacheDir(), "feature cache directory (empty: no cache)")
 	f.BoolVar(&skipBad, "skip-bad", false, "skip unreadable WAV files instead of failing")
 	f.BoolVar(&asJSON, "json", false, "print the report as JSON")
+	f.StringArrayVar(&with, "with", nil, "a further model of an ensemble (repeatable; same classes, front end and window)")
 	cmd.MarkFlagRequired("model")
 	cmd.MarkFlagRequired("data")
 	cmd.RunE = func(cmd *cobra.Command, _ []string) error {
@@ -50,10 +58,29 @@ confusion matrix is also drawn as a PNG.`,
 		if err != nil {
 			return err
 		}
-		defer m.Close()
 		if fold == "" {
 			fold = m.Info().TestFold
 		}
+		if len(with) > 0 {
+			ms := []pipit.Model{m}
+			for _, p := range with {
+				o, err := pipit.LoadModel(p)
+				if err != nil {
+					for _, x := range ms {
+						x.Close()
+					}
+					return err
+				}
+				ms = append(ms, o)
+			}
+			if m, err = pipit.NewEnsemble(ms...); err != nil {
+				for _, x := range ms {
+					x.Close()
+				}
+				return err
+			}
+		}
+		defer m.Close()
 		if png == "" {
 			png = model + ".confusion.png"
 		}
@@ -61,7 +88,7 @@ confusion matrix is also drawn as a PNG.`,
 		if err != nil {
 			return err
 		}
-		rep := &evalReport{Model: model, Data: data, Fold: fold, PNG: png, Evaluation: ev}
+		rep := &evalReport{Model: model, Data: data, Fold: fold, PNG: png, With: with, Evaluation: ev}
 		if err := plots.SavePNG(png, confusionFigure(ev.Windows.Confusion, ev.Classes, "confusion (windows), fold "+fold)); err != nil {
 			return err
 		}
@@ -76,6 +103,9 @@ confusion matrix is also drawn as a PNG.`,
 
 func printEval(w io.Writer, r *evalReport) {
 	fmt.Fprintf(w, "model %s on %s, fold %s: %d clips, %d windows\n\n", r.Model, r.Data, r.Fold, r.NumClips, r.NumWindows)
+	if len(r.With) > 0 {
+		fmt.Fprintf(w, "ensemble: mean window probability of %s and %s (%d models; the device runs one)\n", r.Model, strings.Join(r.With, ", "), 1+len(r.With))
+	}
 	for _, lv := range []struct {
 		name string
 		l    pipit.Level

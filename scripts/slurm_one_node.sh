@@ -93,7 +93,7 @@ epochs 2
 folds 3
 GRID
 for d in local slurm; do
-  "$w/pipit" sweep plan --data "$w/corpus/manifest.csv" --grid "$w/grid" --out "$w/$d" | head -1
+  "$w/pipit" sweep plan --data "$w/corpus/manifest.csv" --grid "$w/grid" --out "$w/$d" | sed -n 1p
 done
 n=$(ls "$w"/slurm/jobs/job-*.json | grep -vc result)
 
@@ -113,7 +113,7 @@ grep -h "jobs:" "$w"/log/task-*.log | sort | uniq -c
 echo "== reports"
 "$w/pipit" sweep report "$w/local" --json --png - >"$w/local.json"
 "$w/pipit" sweep report "$w/slurm" --json --png - >"$w/slurm.json"
-"$w/pipit" sweep report "$w/slurm" --png - | head -20
+"$w/pipit" sweep report "$w/slurm" --png - | sed -n 1,20p
 sha256sum "$w/local.json" "$w/slurm.json"
 if cmp -s "$w/local.json" "$w/slurm.json"; then
   echo "slurm and local reports agree"

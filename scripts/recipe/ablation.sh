@@ -69,9 +69,9 @@ for name in ${ENSEMBLE:-today}; do
 	m=$out/runs/$name/seed1/m.pnet
 	[ -f "$m.fold4" ] || continue
 	for k in 0 1 2 3 4; do
-		run eval --model "$m.fold$k" --data "$fresh" --fold -1 --cache "$cache" --png "$out/x.png" --json >"$out/runs/$name/fresh$k.json" 2>/dev/null
+		run eval --model "$m.fold$k" --data "$fresh" --fold all --cache "$cache" --png "$out/x.png" --json >"$out/runs/$name/fresh$k.json" 2>/dev/null
 	done
 	run eval --model "$m.fold0" --with "$m.fold1" --with "$m.fold2" --with "$m.fold3" --with "$m.fold4" \
-		--data "$fresh" --fold -1 --cache "$cache" --png "$out/x.png" --json >"$out/runs/$name/fresh-ensemble.json" 2>/dev/null
+		--data "$fresh" --fold all --cache "$cache" --png "$out/x.png" --json >"$out/runs/$name/fresh-ensemble.json" 2>/dev/null
 done
 python3 scripts/recipe/ablation_table.py "$out"

@@ -17,9 +17,10 @@ import (
 )
 
 // Recipe is how a network is trained: AdamW with decoupled weight decay,
-// gradient clipping, a cosine learning-rate schedule with linear warm-up
-// (a tenth of the steps, at most 100) down to FinalLR·LR, early stopping on
-// the validation fold, and the default augmentation of package datasets.
+// gradient clipping, a linear warm-up (a tenth of the steps, at most 100)
+// then a constant learning rate or a cosine down to FinalLR·LR, the best
+// epoch on the validation fold kept (optionally early stopping), and the
+// default augmentation of package datasets.
 // Start from [DefaultRecipe]; new options are new fields whose zero value
 // keeps today's behaviour.
 type Recipe struct {
@@ -34,7 +35,7 @@ type Recipe struct {
 	NoAugment   bool    // train without augmentation
 	// Recipe elements (see nn.Recipe): mixup of log-mel windows and labels
 	// with λ ~ Beta(α, α) (0: off), label smoothing ε, the schedule after
-	// the warm-up (nn.SchedCosine, the default, or nn.SchedConstant),
+	// the warm-up (nn.SchedConstant, the default, or nn.SchedCosine),
 	// class-balanced epochs, and distillation from the float model file
 	// Teacher ("" none; with CrossValidate, Teacher + ".fold" + label).
 	MixupAlpha     float64
@@ -45,14 +46,20 @@ type Recipe struct {
 	Distill        nn.Distill
 }
 
-// DefaultRecipe returns the recipe of `pipit train`: 40 epochs of batches
-// of 32, patience 10, peak learning rate 0.005 ending at 2 % of it, weight
-// decay 1e-4, gradients clipped at norm 5, seed 1, augmentation on. The
-// figures are starting points of our own choosing for the built-in
-// networks (common practice), not tuned optima.
+// DefaultRecipe returns the recipe of `pipit train`: 120 epochs of
+// batches of 32 without early stopping (the best validation epoch is
+// kept), peak learning rate 0.005 held constant after the warm-up, mixup
+// of log-mel windows with α = 0.3, label smoothing 0.1, weight decay 1e-4,
+// gradients clipped at norm 5, seed 1, augmentation on. The schedule,
+// mixup, smoothing and epoch count are what the recipe ablation in the
+// README measured best on the hard synthetic corpus (+10.8 points float,
+// +10.2 int8 over the recipe before it: 40 epochs, patience 10, cosine, no
+// mixup or smoothing), at three times its training time and no inference
+// cost; batch, learning rate, decay and clipping are starting points of
+// our own choosing (common practice), not tuned optima.
 func DefaultRecipe() Recipe {
-	return Recipe{Epochs: 40, Batch: 32, Patience: 10, LR: 0.005, FinalLR: 0.02, WeightDecay: 1e-4, ClipNorm: 5, Seed: 1,
-		Schedule: nn.SchedCosine, Distill: nn.Distill{Temperature: 4, Weight: 0.5}}
+	return Recipe{Epochs: 120, Batch: 32, Patience: 0, LR: 0.005, FinalLR: 0.02, WeightDecay: 1e-4, ClipNorm: 5, Seed: 1,
+		Schedule: nn.SchedConstant, MixupAlpha: 0.3, LabelSmoothing: 0.1, Distill: nn.Distill{Temperature: 4, Weight: 0.5}}
 }
 
 // check validates the recipe, naming the field at fault.

@@ -58,7 +58,7 @@ reports mean ± standard deviation over folds.`,
 	f.IntVar(&r.Epochs, "epochs", r.Epochs, "maximum epochs")
 	f.IntVar(&r.Batch, "batch", r.Batch, "batch size")
 	f.IntVar(&r.Patience, "patience", r.Patience, "stop after this many epochs without a better validation accuracy (0: never)")
-	f.Float64Var(&r.LR, "lr", r.LR, "peak learning rate (AdamW, cosine schedule with warm-up)")
+	f.Float64Var(&r.LR, "lr", r.LR, "peak learning rate (AdamW; linear warm-up, then --schedule)")
 	f.Uint64Var(&r.Seed, "seed", r.Seed, "random seed (weights, shuffling, augmentation, assigned folds)")
 	f.Float64Var(&cfg.Overlap, "overlap", 0.5, "overlap of consecutive model windows within a clip")
 	f.StringVar(&cfg.Pad, "pad", datasets.PadZeros, "padding of clips shorter than a window: zeros or repeat")

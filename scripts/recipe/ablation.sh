@@ -20,17 +20,26 @@ data=$out/hard
 cache=$out/cache
 seeds=${SEEDS:-1 2 3}
 
-# name|flags of pipit train; "today" is the recipe before this ablation
-configs='today|
-mixup|--mixup 0.3
-smooth|--label-smoothing 0.1
-wd1e-3|--weight-decay 1e-3
-constant-lr|--schedule constant
-balanced|--balanced
-distill|--teacher TEACHER
-mixup+smooth|--mixup 0.3 --label-smoothing 0.1
-mixup+smooth+balanced|--mixup 0.3 --label-smoothing 0.1 --balanced
-all|--mixup 0.3 --label-smoothing 0.1 --balanced --weight-decay 1e-3 --teacher TEACHER'
+# name|flags of pipit train. "today" pins the recipe before this ablation
+# (40 epochs, patience 10, cosine, no mixup or smoothing); its single
+# elements follow; "long-*" train 120 epochs without early stopping;
+# "new-default" is pipit train's default recipe since (no flags).
+T='--epochs 40 --patience 10 --schedule cosine --mixup 0 --label-smoothing 0'
+L='--epochs 120 --patience 0 --mixup 0 --label-smoothing 0'
+configs="today|$T
+mixup|$T --mixup 0.3
+smooth|$T --label-smoothing 0.1
+wd1e-3|$T --weight-decay 1e-3
+constant-lr|$T --schedule constant
+balanced|$T --balanced
+long-cosine|$L --schedule cosine
+long-constant|$L --schedule constant
+long-constant+mixup|$L --schedule constant --mixup 0.3
+long-constant+smooth|$L --schedule constant --label-smoothing 0.1
+long-constant+balanced|$L --schedule constant --balanced
+new-default|
+new-default+wd1e-3|--weight-decay 1e-3
+new-default+distill|--teacher TEACHER"
 
 want() { [ $# -eq 0 ] && return 0; for w in "$@"; do [ "$w" = "$name" ] && return 0; done; return 1; }
 echo "$configs" | while IFS='|' read -r name flags; do
@@ -41,7 +50,8 @@ echo "$configs" | while IFS='|' read -r name flags; do
 		f=$flags
 		case $f in *TEACHER*)
 			# a folder corpus gets its folds from --seed, so the teacher
-			# is trained per seed, on exactly the student's folds
+			# (pooled, 9.5 times the student's MACs, default recipe) is
+			# trained per seed, on exactly the student's folds
 			t=$out/teacher/seed$s
 			if [ ! -f "$t/cv.json" ]; then
 				mkdir -p "$t"
@@ -65,7 +75,7 @@ done
 # corpus (another synth seed) that no fold model has seen
 fresh=$out/fresh
 [ -f "$fresh/manifest.csv" ] || run synth --hard --clips-per-class 120 --seed 8 --out "$fresh" >/dev/null
-for name in ${ENSEMBLE:-today}; do
+for name in ${ENSEMBLE:-today new-default}; do
 	m=$out/runs/$name/seed1/m.pnet
 	[ -f "$m.fold4" ] || continue
 	for k in 0 1 2 3 4; do

@@ -8,8 +8,8 @@ clip accuracy coincide) of the float model and of its int8 model, mean and
 sample standard deviation over every (fold, seed) run, the int8 - float
 gap, the margin over "today" in units of the larger of the two spreads, the
 paired difference (same seed and fold, so the same split) mean ± sd,
-and the mean training time per epoch (from MODEL.log.csv; wall time on a
-shared machine, indicative only). Standard library only.
+and the mean training time per epoch and per fold model (from
+MODEL.log.csv; wall time on a shared machine, indicative only). Standard library only.
 """
 import csv
 import glob
@@ -19,14 +19,16 @@ import statistics
 import sys
 
 out = sys.argv[1]
-order = ["today", "mixup", "smooth", "wd1e-3", "constant-lr", "balanced", "distill",
-         "mixup+smooth", "mixup+smooth+balanced", "all"]
+order = ["today", "mixup", "smooth", "wd1e-3", "constant-lr", "balanced",
+         "long-cosine", "long-constant", "long-constant+mixup", "long-constant+smooth",
+         "long-constant+balanced", "new-default", "new-default+wd1e-3", "new-default+distill"]
 names = [n for n in order if os.path.isdir(os.path.join(out, "runs", n))]
 names += sorted(set(os.listdir(os.path.join(out, "runs"))) - set(names))
 
 
 def collect(name):
     fl, i8, ep, keys = [], [], [], []
+    runs = 0
     for q in sorted(glob.glob(os.path.join(out, "runs", name, "seed*", "q[0-4].json"))):
         try:
             r = json.load(open(q))
@@ -36,9 +38,10 @@ def collect(name):
         i8.append(r["int8_accuracy"])
         keys.append(os.path.relpath(q, os.path.join(out, "runs", name)))
     for log in glob.glob(os.path.join(out, "runs", name, "seed*", "m.pnet.fold[0-4].log.csv")):
+        runs += 1
         for row in csv.DictReader(open(log)):
             ep.append(float(row["seconds"]))
-    return fl, i8, ep, keys
+    return fl, i8, ep, keys, runs
 
 
 def paired(a, b):
@@ -57,10 +60,10 @@ def ms(v):
 
 rows = {n: collect(n) for n in names}
 base = rows.get("today")
-print("| recipe | runs | float accuracy | int8 accuracy | int8 − float | float margin over today (× sd) | int8 margin (× sd) | paired float difference | s per epoch |")
-print("|---|---|---|---|---|---|---|---|---|")
+print("| recipe | runs | float accuracy | int8 accuracy | int8 − float | float margin over today (× sd) | int8 margin (× sd) | paired float difference | s per epoch | s per model |")
+print("|---|---|---|---|---|---|---|---|---|---|")
 for n in names:
-    fl, i8, ep, _ = rows[n]
+    fl, i8, ep, _, runs = rows[n]
     if not fl:
         continue
     (mf, sf), (mi, si) = ms(fl), ms(i8)
@@ -73,12 +76,15 @@ for n in names:
     if base and base[0] and n != "today":
         m, sd, k = paired(rows[n], base)
         pd = "%+.1f ± %.1f pt (%d pairs)" % (100 * m, 100 * sd, k)
-    print("| %s | %d | %.1f ± %.1f %% | %.1f ± %.1f %% | %+.1f pt | %s | %s | %s | %.2f |" % (
+    print("| %s | %d | %.1f ± %.1f %% | %.1f ± %.1f %% | %+.1f pt | %s | %s | %s | %.2f | %.0f |" % (
         n, len(fl), 100 * mf, 100 * sf, 100 * mi, 100 * si, 100 * (mi - mf), marg[0], marg[1], pd,
-        statistics.mean(ep) if ep else float("nan")))
+        statistics.mean(ep) if ep else float("nan"), sum(ep) / runs if runs else float("nan")))
 print()
 for t in sorted(glob.glob(os.path.join(out, "teacher", "seed*", "cv.json"))):
-    r = json.load(open(t))
+    try:
+        r = json.load(open(t))
+    except ValueError:  # still training
+        continue
     a = r["test_window_accuracy"]
     print("teacher (pooled, float, %s): %.1f ± %.1f %% over %d folds" % (
         os.path.basename(os.path.dirname(t)), 100 * a["mean"], 100 * a["std"], len(r["folds"])))

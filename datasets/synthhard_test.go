@@ -9,7 +9,7 @@ import (
 	"github.com/pipit-audio/pipit/features"
 )
 
-// TestRoomImpulseDecay measures the reverberation time of roomImpulse the
+// TestRoomResponseDecay measures the reverberation time of roomResponse the
 // way ISO 3382-2:2008 does: Schroeder's backward integration of the
 // squared impulse response (Schroeder 1965, "New Method of Measuring
 // Reverberation Time", JASA 37(3):409), a least-squares line through the
@@ -17,11 +17,11 @@ import (
 // within 10 % (common practice): the noise of one realisation bends the
 // curve a little. The direct-to-reverberant ratio is exact by
 // construction and checked to 1e-9 dB.
-func TestRoomImpulseDecay(t *testing.T) {
+func TestRoomResponseDecay(t *testing.T) {
 	const fs = 16000.0
 	for _, c := range []struct{ rt60, drr float64 }{{0.25, 0}, {0.4, 6}, {0.45, -4}} {
 		rng := rand.New(rand.NewPCG(3, uint64(c.rt60*1000)))
-		h := roomImpulse(fs, c.rt60, c.drr, rng)
+		h := roomResponse(fs, c.rt60, c.drr, rng)
 		var rev float64
 		for _, v := range h[1:] {
 			rev += v * v

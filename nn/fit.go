@@ -24,6 +24,13 @@ type FitConfig struct {
 	Patience int     // stop after this many epochs without a better validation score; 0 = never
 	Seed     uint64  // shuffling
 	Recipe   *Recipe // mixup, balanced sampling, distillation; nil: none
+	// Resume, if not nil, continues a run from the state saved by Save
+	// after some epoch; the trainer must be the one checkpointed with it
+	// (same epoch). The rest of the configuration must be the run's.
+	Resume *FitState
+	// Save, if not nil, runs after every epoch (after onEpoch) with the
+	// state that, with a checkpoint of the trainer, resumes the run.
+	Save func(*FitState) error
 }
 
 // EpochStats reports one epoch of [Fit].
@@ -67,7 +74,8 @@ func Fit(tr *Trainer, cfg FitConfig, train, val SampleSource, progress FitProgre
 	for k := range bufs {
 		bufs[k] = batchBuf{x: make([]float32, cfg.Batch*in), y: make([]int, cfg.Batch)}
 	}
-	rng := rand.New(rand.NewPCG(cfg.Seed, 0x5eed))
+	shufflePCG := rand.NewPCG(cfg.Seed, 0x5eed)
+	rng := rand.New(shufflePCG)
 	order := make([]int, n)
 	for i := range order {
 		order[i] = i
@@ -92,13 +100,22 @@ func Fit(tr *Trainer, cfg FitConfig, train, val SampleSource, progress FitProgre
 			}
 		}
 	}
-	bestData := append([]float32(nil), tr.Net.Params.Data...)
-	bestState := append([]float32(nil), tr.Net.Params.State...)
-	bestAcc, bestLoss := math.Inf(-1), math.Inf(1)
-	var hist []EpochStats
-	since := 0
+	lp := &fitLoop{order: order, shuffle: shufflePCG, bestData: append([]float32(nil), tr.Net.Params.Data...),
+		bestSt: append([]float32(nil), tr.Net.Params.State...), bestAcc: math.Inf(-1), bestLoss: math.Inf(1)}
+	if rs != nil {
+		lp.recipe = rs.pcg
+	}
+	if cfg.Resume != nil {
+		if err := lp.restore(cfg.Resume, cfg.Epochs); err != nil {
+			return nil, err
+		}
+	}
+	bestData, bestState := lp.bestData, lp.bestSt
 	steps := (n + cfg.Batch - 1) / cfg.Batch
-	for ep := 1; ep <= cfg.Epochs; ep++ {
+	for ep := lp.epoch + 1; ep <= cfg.Epochs; ep++ {
+		if cfg.Patience > 0 && lp.since >= cfg.Patience {
+			break // a resumed run that had already stopped early
+		}
 		t0 := time.Now()
 		if labels != nil {
 			BalancedOrder(order, labels, rng)
@@ -147,7 +164,7 @@ func Fit(tr *Trainer, cfg FitConfig, train, val SampleSource, progress FitProgre
 		close(stop)
 		<-done // ready has room for both buffers, so the producer never blocks there
 		if stepErr != nil {
-			return hist, stepErr
+			return lp.hist, stepErr
 		}
 		st := EpochStats{Epoch: ep, Loss: lossSum / float64(seen), Accuracy: float64(correct) / float64(seen), LR: lr}
 		st.Seconds = time.Since(t0).Seconds()
@@ -157,34 +174,44 @@ func Fit(tr *Trainer, cfg FitConfig, train, val SampleSource, progress FitProgre
 			ev, err := Evaluate(tr.Net, tr.Loss, val, cfg.Batch)
 			st.ValSeconds = time.Since(tv).Seconds()
 			if err != nil {
-				return hist, err
+				return lp.hist, err
 			}
 			st.ValLoss, st.ValAcc = ev.Loss, ev.Accuracy
 		} else {
 			st.ValLoss, st.ValAcc = st.Loss, st.Accuracy
 		}
-		if st.ValAcc > bestAcc || (st.ValAcc == bestAcc && st.ValLoss < bestLoss) {
-			bestAcc, bestLoss = st.ValAcc, st.ValLoss
+		if st.ValAcc > lp.bestAcc || (st.ValAcc == lp.bestAcc && st.ValLoss < lp.bestLoss) {
+			lp.bestAcc, lp.bestLoss = st.ValAcc, st.ValLoss
 			copy(bestData, tr.Net.Params.Data)
 			copy(bestState, tr.Net.Params.State)
 			st.Best = true
-			since = 0
+			lp.since = 0
 		} else {
-			since++
+			lp.since++
 		}
-		hist = append(hist, st)
+		lp.hist = append(lp.hist, st)
+		lp.epoch = ep
 		if onEpoch != nil {
 			if err := onEpoch(st); err != nil {
-				return hist, err
+				return lp.hist, err
 			}
 		}
-		if cfg.Patience > 0 && since >= cfg.Patience {
+		if cfg.Save != nil {
+			fs, err := lp.save()
+			if err == nil {
+				err = cfg.Save(fs)
+			}
+			if err != nil {
+				return lp.hist, err
+			}
+		}
+		if cfg.Patience > 0 && lp.since >= cfg.Patience {
 			break
 		}
 	}
 	copy(tr.Net.Params.Data, bestData)
 	copy(tr.Net.Params.State, bestState)
-	return hist, nil
+	return lp.hist, nil
 }
 
 // batchBuf is one batch being filled or trained on.

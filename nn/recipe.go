@@ -400,12 +400,14 @@ type recipeState struct {
 	targets, scratch []float32
 	teacher          []float32
 	perm             []int
+	pcg              *rand.PCG
 	rng              *rand.Rand
 }
 
 func newRecipeState(r *Recipe, batch, in, classes int, seed uint64) *recipeState {
+	pcg := rand.NewPCG(seed, 0x6d1c)
 	return &recipeState{r: r, targets: make([]float32, batch*classes), scratch: make([]float32, batch*max(in, classes)),
-		teacher: make([]float32, batch*classes), perm: make([]int, batch), rng: rand.New(rand.NewPCG(seed, 0x6d1c))}
+		teacher: make([]float32, batch*classes), perm: make([]int, batch), pcg: pcg, rng: rand.New(pcg)}
 }
 
 // step runs one recipe step on the batch x (b samples) with labels y.

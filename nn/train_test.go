@@ -2,12 +2,14 @@ package nn
 
 import (
 	"bytes"
+	"encoding/json"
 	"errors"
 	"math"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"runtime"
+	"strings"
 	"testing"
 )
 
@@ -306,5 +308,93 @@ func TestSchedules(t *testing.T) {
 	st := Schedule{Kind: SchedStep, Base: 1, StepEvery: 10, Gamma: 0.5}
 	if st.At(9) != 1 || st.At(10) != 0.5 || st.At(25) != 0.25 {
 		t.Errorf("step schedule: %g %g %g", st.At(9), st.At(10), st.At(25))
+	}
+}
+
+// TestFitResumeBitIdentical stops a Fit with mixup and balanced epochs
+// after every possible epoch, restarts it from the trainer checkpoint and
+// the FitState saved then, and checks that parameters, best epoch and
+// history end bit-identical to an uninterrupted run.
+func TestFitResumeBitIdentical(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 4))
+	x, y := quadrantTask(rng, 96)
+	in := len(x) / len(y)
+	xs := make([][]float32, len(y))
+	for i := range xs {
+		xs[i] = x[i*in : (i+1)*in]
+	}
+	train := labelledSource{plainSource{xs[:64], y[:64]}}
+	val := plainSource{xs[64:], y[64:]}
+	const epochs = 5
+	cfg := func() FitConfig {
+		return FitConfig{Epochs: epochs, Batch: 16, Seed: 9, Recipe: &Recipe{MixupAlpha: 0.3, Balanced: true}}
+	}
+	ref := newTinyTrainer(t, 5)
+	defer ref.Net.Close()
+	refHist, err := Fit(ref, cfg(), train, val, nil, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := t.TempDir()
+	for stop := 1; stop < epochs; stop++ {
+		tr := newTinyTrainer(t, 5)
+		c := cfg()
+		var saved *FitState
+		errStop := errors.New("stop")
+		c.Save = func(s *FitState) error {
+			if s.EpochsDone == stop {
+				saved = s
+				if err := tr.WriteCheckpoint(filepath.Join(dir, "carry"), nil); err != nil {
+					return err
+				}
+				return errStop
+			}
+			return nil
+		}
+		if _, err := Fit(tr, c, train, val, nil, nil); !errors.Is(err, errStop) {
+			t.Fatalf("stop %d: %v", stop, err)
+		}
+		tr.Net.Close()
+		// the state goes through JSON, as a file would carry it
+		b, err := json.Marshal(saved)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var back FitState
+		if err := json.Unmarshal(b, &back); err != nil {
+			t.Fatal(err)
+		}
+		ck, err := ReadCheckpoint(filepath.Join(dir, "carry"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		c = cfg()
+		c.Resume = &back
+		hist, err := Fit(ck.Trainer, c, train, val, nil, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !sameBits(ck.Trainer.Net.Params.Data, ref.Net.Params.Data) || !sameBits(ck.Trainer.Net.Params.State, ref.Net.Params.State) {
+			t.Errorf("resumed after epoch %d: parameters differ from the uninterrupted run", stop)
+		}
+		if len(hist) != len(refHist) {
+			t.Fatalf("resumed after epoch %d: %d epochs of history, want %d", stop, len(hist), len(refHist))
+		}
+		for i := range hist {
+			a, b := hist[i], refHist[i]
+			if a.Loss != b.Loss || a.ValLoss != b.ValLoss || a.ValAcc != b.ValAcc || a.Best != b.Best || a.LR != b.LR {
+				t.Errorf("resumed after epoch %d: epoch %d differs: %+v vs %+v", stop, i+1, a, b)
+			}
+		}
+		ck.Trainer.Net.Close()
+	}
+	// a state that does not fit the run is refused
+	bad := FitState{EpochsDone: epochs + 1}
+	c := cfg()
+	c.Resume = &bad
+	tr := newTinyTrainer(t, 5)
+	defer tr.Net.Close()
+	if _, err := Fit(tr, c, train, val, nil, nil); err == nil || !strings.Contains(err.Error(), "epochs done") {
+		t.Errorf("a state of %d epochs done for a run of %d: err %v", epochs+1, epochs, err)
 	}
 }

@@ -80,7 +80,7 @@ func newLoader(c *datasets.Corpus, d Data, fe features.Config, win datasets.Wind
 func (l *loader) load(name string, ids []int, keepAudio bool, stats *features.BandStats) (*datasets.Set, error) {
 	l.rep.Stage("load " + name)
 	s, err := datasets.Load(l.c, ids, datasets.Options{FrontEnd: l.fe, Window: l.win, Cache: l.cache, SkipBad: l.data.SkipBad, KeepAudio: keepAudio,
-		Warn:     func(err error) { l.skipped++; l.rep.Warn(err) },
+		Warn:     func(err error) { l.skipped++; l.rep.Warn(fmt.Errorf("skipping: %w", err)) },
 		Progress: func(d, t int) { l.rep.Step(d, t, "clips", "") }})
 	if err != nil {
 		return nil, err

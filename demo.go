@@ -2,6 +2,7 @@ package pipit
 
 import (
 	"fmt"
+	"os"
 	"os/exec"
 	"path/filepath"
 	"time"
@@ -103,8 +104,13 @@ func Demo(cfg DemoConfig, rep Reporter) (*DemoReport, error) {
 	}
 	recipe := DefaultRecipe()
 	recipe.Epochs = cfg.Epochs
+	// The demo owns its folder: a run of an earlier, interrupted demo is
+	// not carried on.
+	if err := os.RemoveAll(r.Model + UnfinishedSuffix); err != nil {
+		return nil, fmt.Errorf("pipit: demo: %w", err)
+	}
 	if _, err := Train(corpus, TrainConfig{Arch: r.Arch, FrontEnd: features.DefaultConfig(), Overlap: 0.5, TestFold: "0", ValFold: "1",
-		Recipe: recipe, CacheDir: data.CacheDir, Out: r.Model}, rep); err != nil {
+		Recipe: recipe, CacheDir: data.CacheDir, Out: r.Model, Replace: true}, rep); err != nil {
 		return nil, err
 	}
 

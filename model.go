@@ -237,9 +237,28 @@ func loadFold(c *datasets.Corpus, info *datasets.ModelInfo, d Data, fold string,
 		if err != nil {
 			return nil, fmt.Errorf("pipit: %w", err)
 		}
+		if fold == info.TestFold {
+			if err := checkTestFold(c, info, k, rep); err != nil {
+				return nil, err
+			}
+		}
 		ids, _ = c.Split(k)
 	}
 	return newLoader(c, d, info.FrontEnd, info.Window, rep).load(fold, ids, false, info.Stats)
+}
+
+// checkTestFold refuses fold k of c as the model's test fold when it holds
+// other clips than the model recorded, and warns when the model records
+// none.
+func checkTestFold(c *datasets.Corpus, info *datasets.ModelInfo, k int, rep Reporter) error {
+	checked, err := info.CheckTestFold(c, k)
+	if err != nil {
+		return fmt.Errorf("pipit: %w", err)
+	}
+	if !checked {
+		orQuiet(rep).Warn(fmt.Errorf("the model records no test clips (written by an older pipit): cannot check that fold %s of %s holds the clips it was tested on", info.TestFold, c.Source))
+	}
+	return nil
 }
 
 // Probabilities returns the softmax class probabilities (n, classes) of

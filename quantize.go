@@ -83,6 +83,9 @@ func Quantize(fm *FloatModel, cfg QuantizeConfig, rep Reporter) (*QuantizeResult
 	if err != nil {
 		return nil, fmt.Errorf("pipit: the model's test fold: %w", err)
 	}
+	if err := checkTestFold(c, info, testIdx, rep); err != nil {
+		return nil, err
+	}
 	calib := cfg.CalibFold
 	if calib == "" {
 		calib = info.ValFold
@@ -127,7 +130,9 @@ func Quantize(fm *FloatModel, cfg QuantizeConfig, rep Reporter) (*QuantizeResult
 			return nil, err
 		}
 	}
-	if _, err := withInfo(q, info); err != nil {
+	qinfo := *info
+	qinfo.CalibClips = c.Identify(calIDs)
+	if _, err := withInfo(q, &qinfo); err != nil {
 		return nil, err
 	}
 	if err := q.WriteFile(cfg.Out); err != nil {

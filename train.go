@@ -2,11 +2,17 @@ package pipit
 
 import (
 	"bytes"
+	"crypto/sha256"
+	"encoding/hex"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
+	"io/fs"
 	"math"
 	"os"
+	"path/filepath"
+	"strings"
 	"time"
 
 	"github.com/pipit-audio/pipit/datasets"
@@ -62,19 +68,40 @@ func DefaultRecipe() Recipe {
 		Schedule: nn.SchedConstant, MixupAlpha: 0.3, LabelSmoothing: 0.1, Distill: nn.Distill{Temperature: 4, Weight: 0.5}}
 }
 
-// check validates the recipe, naming the field at fault.
+// check validates the recipe, naming the field at fault and the flag of
+// pipit train that sets it.
 func (r Recipe) check() error {
+	bad := func(v float64) bool { return math.IsNaN(v) || math.IsInf(v, 0) }
+	var err string
 	switch {
 	case r.Epochs < 1:
-		return fmt.Errorf("pipit: recipe: epochs %d, want at least 1", r.Epochs)
+		err = fmt.Sprintf("epochs %d (--epochs), want at least 1", r.Epochs)
 	case r.Batch < 1:
-		return fmt.Errorf("pipit: recipe: batch %d, want at least 1", r.Batch)
+		err = fmt.Sprintf("batch %d (--batch), want at least 1", r.Batch)
 	case r.Patience < 0:
-		return fmt.Errorf("pipit: recipe: patience %d, want 0 or more", r.Patience)
-	case !(r.LR > 0) || math.IsInf(r.LR, 0):
-		return fmt.Errorf("pipit: recipe: learning rate %g, want a positive number", r.LR)
+		err = fmt.Sprintf("patience %d (--patience), want 0 (never stop early) or more", r.Patience)
+	case !(r.LR > 0) || bad(r.LR):
+		err = fmt.Sprintf("learning rate %g (--lr), want a positive number", r.LR)
+	case r.FinalLR < 0 || r.FinalLR > 1 || bad(r.FinalLR):
+		err = fmt.Sprintf("final learning rate %g of the peak, want 0 to 1", r.FinalLR)
+	case r.WeightDecay < 0 || bad(r.WeightDecay):
+		err = fmt.Sprintf("weight decay %g (--weight-decay), want 0 or more", r.WeightDecay)
+	case r.ClipNorm < 0 || bad(r.ClipNorm):
+		err = fmt.Sprintf("gradient clip norm %g, want 0 (none) or more", r.ClipNorm)
+	case r.MixupAlpha < 0 || bad(r.MixupAlpha):
+		err = fmt.Sprintf("mixup α %g (--mixup), want 0 (off) or more", r.MixupAlpha)
+	case r.LabelSmoothing < 0 || r.LabelSmoothing >= 1 || bad(r.LabelSmoothing):
+		err = fmt.Sprintf("label smoothing %g (--label-smoothing), want at least 0 and below 1", r.LabelSmoothing)
+	case r.Schedule != "" && r.Schedule != nn.SchedCosine && r.Schedule != nn.SchedConstant:
+		err = fmt.Sprintf("schedule %q (--schedule), want %s or %s", r.Schedule, nn.SchedConstant, nn.SchedCosine)
+	case r.Teacher != "" && !(r.Distill.Temperature > 0) || bad(r.Distill.Temperature):
+		err = fmt.Sprintf("distillation temperature %g (--distill-temperature), want a positive number", r.Distill.Temperature)
+	case r.Teacher != "" && (r.Distill.Weight < 0 || r.Distill.Weight > 1 || bad(r.Distill.Weight)):
+		err = fmt.Sprintf("distillation weight %g (--distill-weight), want 0 to 1", r.Distill.Weight)
+	default:
+		return nil
 	}
-	return nil
+	return fmt.Errorf("pipit: recipe: %s", err)
 }
 
 // trainer builds the nn trainer of the recipe for a training set of n
@@ -148,13 +175,27 @@ type TrainConfig struct {
 	CacheDir string // feature cache directory ("": no cache)
 	SkipBad  bool   // skip unreadable WAV files (reported through Reporter.Warn) instead of failing
 	Out      string // float model file to write (by convention NAME.pnet)
-	// Checkpoint is where the best epoch so far is written during the run
-	// ("": Out). When it differs from Out, Train renames it onto Out once
-	// the run has ended without error, so an interrupted run leaves Out as
-	// it was.
-	Checkpoint string
-	// Log writes Out+".log.csv" and Out+".curves.png" (WriteTrainLog)
-	// after every epoch.
+	// Replace lets the run write over an existing Out (and its log and
+	// curves) when it ends; without it an existing Out is refused before
+	// any work. Out is replaced only by a run that finished: until then
+	// it stays as it was, whatever happens to the run.
+	Replace bool
+	// CarryOn continues the interrupted run whose work folder
+	// Out+".unfinished" is there (see [UnfinishedSuffix]) from its last
+	// finished epoch, bit-identically to a run never interrupted; the
+	// run's settings and clips must be the ones it started with. Without
+	// CarryOn such a folder is refused (it holds work the user may want).
+	// With CarryOn and no folder, the run starts afresh.
+	CarryOn bool
+	// MemoryLimit refuses, before anything is allocated, a network whose
+	// training would need more bytes than this (nn.TrainingBytes at the
+	// recipe's batch); 0: the memory the system reports available
+	// (MemAvailable of /proc/meminfo; no check where there is none);
+	// negative: no check.
+	MemoryLimit int64
+	// Log writes Out+".log.csv" and Out+".curves.png" (WriteTrainLog):
+	// into the work folder after every epoch, next to Out when the run
+	// ends.
 	Log bool
 	// OnEpoch, if not nil, runs after every epoch with the history so far
 	// (e.g. to write a log with WriteTrainLog); an error stops training.
@@ -203,22 +244,153 @@ func folds(c *datasets.Corpus, test, val string) (int, int, error) {
 	return ti, vi, nil
 }
 
+// UnfinishedSuffix names the work folder of a run: Train works in
+// Out+UnfinishedSuffix (the best epoch so far, the state to carry on from,
+// the log and curves) and moves the results next to Out only when the run
+// has ended, so an interrupted run leaves Out as it was and its folder for
+// [TrainConfig].CarryOn.
+const UnfinishedSuffix = ".unfinished"
+
+// Files of a run's work folder.
+const (
+	workBest  = "best.pnet"  // best epoch so far: the model file to be
+	workCarry = "carry.ckpt" // trainer after the last finished epoch, with the fit state
+	workLog   = "log.csv"
+	workPNG   = "curves.png"
+)
+
+// carryMeta is the meta JSON of a run's carry checkpoint.
+type carryMeta struct {
+	Settings string      `json:"settings_sha256"` // digest of what the run depends on
+	Fit      nn.FitState `json:"fit"`
+}
+
+// checkOut validates the output of a run before any work: a model file
+// name in an existing folder, not an existing file unless replace, and
+// the state of its work folder. It returns whether there is an
+// interrupted run to carry on.
+func checkOut(out string, replace, carryOn bool) (carry bool, err error) {
+	if out == "" {
+		return false, fmt.Errorf("pipit: train: no output model file (--out)")
+	}
+	dir := filepath.Dir(out)
+	if fi, err := os.Stat(dir); err != nil {
+		return false, fmt.Errorf("pipit: train: --out %s: folder %s: %w", out, dir, errors.Unwrap(err))
+	} else if !fi.IsDir() {
+		return false, fmt.Errorf("pipit: train: --out %s: %s is not a folder", out, dir)
+	}
+	if fi, err := os.Stat(out); err == nil {
+		if fi.IsDir() {
+			return false, fmt.Errorf("pipit: train: --out %s is a folder; give a model file name", out)
+		}
+		if !replace {
+			return false, fmt.Errorf("pipit: train: %s exists; --replace writes over it when this run has ended (it stays as it is until then), or choose another --out", out)
+		}
+	}
+	work := out + UnfinishedSuffix
+	fi, err := os.Stat(work)
+	switch {
+	case errors.Is(err, fs.ErrNotExist):
+		return false, nil
+	case err != nil:
+		return false, fmt.Errorf("pipit: train: %w", err)
+	case !fi.IsDir():
+		return false, fmt.Errorf("pipit: train: %s is in the way of the run's work folder; move it away", work)
+	}
+	if _, err := os.Stat(filepath.Join(work, workBest)); errors.Is(err, fs.ErrNotExist) {
+		// No epoch finished, or the run had already put its model in
+		// place: nothing to carry on.
+		return false, os.RemoveAll(work)
+	}
+	if !carryOn {
+		return false, fmt.Errorf("pipit: train: %s holds an interrupted run of %s; --carry-on continues it from its last finished epoch, or delete the folder to start over", work, out)
+	}
+	return true, nil
+}
+
+// availableMemory returns MemAvailable of /proc/meminfo in bytes.
+func availableMemory() (int64, bool) {
+	b, err := os.ReadFile("/proc/meminfo")
+	if err != nil {
+		return 0, false
+	}
+	for _, line := range strings.Split(string(b), "\n") {
+		if rest, ok := strings.CutPrefix(line, "MemAvailable:"); ok {
+			var kb int64
+			if _, err := fmt.Sscanf(strings.TrimSpace(rest), "%d kB", &kb); err == nil {
+				return kb * 1024, true
+			}
+		}
+	}
+	return 0, false
+}
+
+// checkMemory refuses a network whose training needs more memory than
+// limit (see TrainConfig.MemoryLimit).
+func checkMemory(net *nn.Network, batch int, limit int64) error {
+	if limit < 0 {
+		return nil
+	}
+	what := "the limit given"
+	if limit == 0 {
+		var ok bool
+		if limit, ok = availableMemory(); !ok {
+			return nil
+		}
+		what = "this machine has available"
+	}
+	need := nn.TrainingBytes(net, batch)
+	if need > limit {
+		return fmt.Errorf("pipit: train: the network needs about %.1f GB to train on batches of %d (parameters, optimiser state, activations and their gradients), more than the %.1f GB %s; make it smaller or lower --batch",
+			float64(need)/1e9, batch, float64(limit)/1e9, what)
+	}
+	return nil
+}
+
+// settingsDigest is a SHA-256 of everything a run's result depends on,
+// so that a carried-on run is refused when anything has changed.
+func settingsDigest(cfg TrainConfig, spec string, info *datasets.ModelInfo, train *datasets.ClipSet) (string, error) {
+	b, err := json.Marshal(struct {
+		Spec    string
+		Info    *datasets.ModelInfo
+		Train   *datasets.ClipSet
+		Recipe  Recipe
+		SkipBad bool
+	}{spec, info, train, cfg.Recipe, cfg.SkipBad})
+	if err != nil {
+		return "", fmt.Errorf("pipit: %w", err)
+	}
+	h := sha256.Sum256(b)
+	return hex.EncodeToString(h[:]), nil
+}
+
 // Train trains cfg.Arch on the training folds of c (every fold but the
 // test and validation folds), with augmentation unless the recipe turns it
-// off, early stopping on the validation fold, and the band statistics of
-// the training windows normalising every set. It writes the best epoch to
-// cfg.Checkpoint (default cfg.Out) whenever validation improves, with the
-// model info (front end, window, statistics, classes, fold labels) as its
-// metadata, and reports window and clip accuracy of that epoch on the test
-// fold.
+// off, keeping the best epoch on the validation fold, and the band
+// statistics of the training windows normalising every set. Outputs,
+// flags and memory are checked before any work (see [TrainConfig]): an
+// existing cfg.Out needs cfg.Replace. The run works in
+// cfg.Out+[UnfinishedSuffix], writing the best epoch there whenever
+// validation improves and the state to carry on from after every epoch;
+// when it has ended it renames the best epoch onto cfg.Out, with the
+// model info (front end, window, statistics, classes, fold labels and
+// the identities of the test and validation clips) as its metadata, and
+// reports window and clip accuracy of that epoch on the test fold.
 func Train(c *datasets.Corpus, cfg TrainConfig, rep Reporter) (*TrainResult, error) {
 	t0 := time.Now()
 	rep = orQuiet(rep)
 	if err := cfg.Recipe.check(); err != nil {
 		return nil, err
 	}
-	if cfg.Out == "" {
-		return nil, fmt.Errorf("pipit: train: no output model file")
+	if cfg.Overlap < 0 || cfg.Overlap >= 1 || math.IsNaN(cfg.Overlap) {
+		return nil, fmt.Errorf("pipit: train: overlap %g (--overlap), want at least 0 and below 1", cfg.Overlap)
+	}
+	carry, err := checkOut(cfg.Out, cfg.Replace, cfg.CarryOn)
+	if err != nil {
+		return nil, err
+	}
+	if cfg.CarryOn && !carry {
+		rep.Note(fmt.Sprintf("nothing to carry on for %s: starting afresh", cfg.Out))
 	}
 	fe := cfg.FrontEnd.Complete()
 	if err := fe.Validate(); err != nil {
@@ -232,12 +404,19 @@ func Train(c *datasets.Corpus, cfg TrainConfig, rep Reporter) (*TrainResult, err
 	if err != nil {
 		return nil, err
 	}
-	defer net.Close()
+	defer func() { net.Close() }()
 	if net.Input.C != 1 || net.Input.H != fe.Bands {
 		return nil, fmt.Errorf("pipit: network input %v needs %d bands × frames × 1; the front end gives %d bands", net.Input, net.Input.H, fe.Bands)
 	}
 	if net.Output().Size() != len(c.Classes) {
 		return nil, fmt.Errorf("pipit: network has %d outputs, the corpus %d classes", net.Output().Size(), len(c.Classes))
+	}
+	if err := checkMemory(net, cfg.Recipe.Batch, cfg.MemoryLimit); err != nil {
+		return nil, err
+	}
+	work := cfg.Out + UnfinishedSuffix
+	if err := os.MkdirAll(work, 0o755); err != nil {
+		return nil, fmt.Errorf("pipit: train: %w", err)
 	}
 	pad := cfg.Pad
 	if pad == "" {
@@ -271,32 +450,60 @@ func Train(c *datasets.Corpus, cfg TrainConfig, rep Reporter) (*TrainResult, err
 		return nil, err
 	}
 	info := &datasets.ModelInfo{Version: datasets.ModelInfoVersion, Arch: cfg.Arch, Classes: c.Classes, FrontEnd: fe, Window: win, Stats: st,
-		TestFold: c.FoldLabel(testIdx), ValFold: c.FoldLabel(valIdx), Folds: c.Folds, FoldSeed: cfg.Recipe.Seed}
+		TestFold: c.FoldLabel(testIdx), ValFold: c.FoldLabel(valIdx), Folds: c.Folds, FoldSeed: cfg.Recipe.Seed,
+		TestClips: c.Identify(testIDs), ValClips: c.Identify(valIDs)}
 	meta, err := info.Marshal()
 	if err != nil {
 		return nil, err
+	}
+	digest, err := settingsDigest(cfg, net.Spec(), info, c.Identify(trainIDs))
+	if err != nil {
+		return nil, err
+	}
+	var resume *nn.FitState
+	if carry {
+		ck, err := nn.ReadCheckpoint(filepath.Join(work, workCarry))
+		if errors.Is(err, fs.ErrNotExist) {
+			rep.Note(fmt.Sprintf("%s has no finished epoch to carry on from: starting afresh", work))
+		} else if err != nil {
+			return nil, fmt.Errorf("pipit: train: carry on: %w (delete %s to start over)", err, work)
+		} else {
+			var cm carryMeta
+			if err := json.Unmarshal(ck.Meta, &cm); err != nil {
+				ck.Trainer.Net.Close()
+				return nil, fmt.Errorf("pipit: train: carry on: %s: %w", filepath.Join(work, workCarry), err)
+			}
+			if cm.Settings != digest {
+				ck.Trainer.Net.Close()
+				return nil, fmt.Errorf("pipit: train: %s was started with other settings or clips (network, front end, window, folds, recipe or manifest differ): run with the settings it started with, or delete it to start over", work)
+			}
+			net.Close()
+			net, tr = ck.Trainer.Net, ck.Trainer
+			resume = &cm.Fit
+			rep.Note(fmt.Sprintf("carrying on %s from epoch %d of %d", cfg.Out, cm.Fit.EpochsDone, cfg.Recipe.Epochs))
+		}
 	}
 	fitRec, closeTeacher, err := cfg.Recipe.fitRecipe(info)
 	if err != nil {
 		return nil, err
 	}
 	defer closeTeacher()
-	ckpt := cfg.Checkpoint
-	if ckpt == "" {
-		ckpt = cfg.Out
-	}
 	var hist []nn.EpochStats
+	if resume != nil {
+		hist = append(hist, resume.History...)
+	}
 	progress := func(ep, s, n int, loss, acc float64, seen int, secs float64) {
 		if s == 1 {
 			rep.Stage(fmt.Sprintf("epoch %d/%d", ep, cfg.Recipe.Epochs))
 		}
 		rep.Step(s, n, "batches", fmt.Sprintf("train loss %.4f, %.1f %% of windows right, %.0f windows/s", loss, 100*acc, float64(seen)/secs))
 	}
+	best := filepath.Join(work, workBest)
 	onEpoch := func(e nn.EpochStats) error {
 		mark := ""
 		if e.Best {
 			mark = "; best so far, saved"
-			if err := tr.WriteCheckpoint(ckpt, meta); err != nil {
+			if err := tr.WriteCheckpoint(best, meta); err != nil {
 				return err
 			}
 		}
@@ -304,7 +511,7 @@ func Train(c *datasets.Corpus, cfg TrainConfig, rep Reporter) (*TrainResult, err
 			e.Loss, 100*e.Accuracy, info.ValFold, e.ValLoss, 100*e.ValAcc, e.SamplesSec, mark))
 		hist = append(hist, e)
 		if cfg.Log {
-			if err := WriteTrainLog(cfg.Out+".log.csv", cfg.Out+".curves.png", hist); err != nil {
+			if err := WriteTrainLog(filepath.Join(work, workLog), filepath.Join(work, workPNG), hist); err != nil {
 				return err
 			}
 		}
@@ -313,21 +520,21 @@ func Train(c *datasets.Corpus, cfg TrainConfig, rep Reporter) (*TrainResult, err
 		}
 		return nil
 	}
-	r := cfg.Recipe
-	if _, err := nn.Fit(tr, nn.FitConfig{Epochs: r.Epochs, Batch: r.Batch, Patience: r.Patience, Seed: r.Seed, Recipe: fitRec}, trainSet, valSet, progress, onEpoch); err != nil {
-		return nil, err
-	}
-	if ckpt != cfg.Out {
-		if err := os.Rename(ckpt, cfg.Out); err != nil {
-			return nil, fmt.Errorf("pipit: %w", err)
+	save := func(st *nn.FitState) error {
+		m, err := json.Marshal(carryMeta{Settings: digest, Fit: *st})
+		if err != nil {
+			return fmt.Errorf("pipit: train: saving the state to carry on from: %w", err)
 		}
+		return tr.WriteCheckpoint(filepath.Join(work, workCarry), m)
+	}
+	r := cfg.Recipe
+	if _, err := nn.Fit(tr, nn.FitConfig{Epochs: r.Epochs, Batch: r.Batch, Patience: r.Patience, Seed: r.Seed, Recipe: fitRec, Resume: resume, Save: save},
+		trainSet, valSet, progress, onEpoch); err != nil {
+		return nil, err
 	}
 	// Fit restored the best epoch's parameters; test them.
 	res := &TrainResult{Model: cfg.Out, Arch: cfg.Arch, TestFold: info.TestFold, ValFold: info.ValFold, TrainWindows: trainSet.Len(),
 		Epochs: len(hist), History: hist, SkippedClips: ld.skipped, CacheHits: ld.cache.Hits}
-	if cfg.Log {
-		res.Log, res.Curves = cfg.Out+".log.csv", cfg.Out+".curves.png"
-	}
 	for _, e := range hist {
 		if e.Best {
 			res.BestEpoch, res.ValAccuracy = e.Epoch, e.ValAcc
@@ -338,6 +545,26 @@ func Train(c *datasets.Corpus, cfg TrainConfig, rep Reporter) (*TrainResult, err
 		return nil, err
 	}
 	res.TestAccuracy, res.TestClipAccuracy = ev.Accuracy, ev.ClipAccuracy
+	// The run has ended: logs, then the model (the step that counts),
+	// then the work folder goes.
+	if cfg.Log {
+		res.Log, res.Curves = cfg.Out+".log.csv", cfg.Out+".curves.png"
+		if err := os.Rename(filepath.Join(work, workLog), res.Log); err != nil {
+			return nil, fmt.Errorf("pipit: train: %w", err)
+		}
+		if err := os.Rename(filepath.Join(work, workPNG), res.Curves); err != nil && !errors.Is(err, fs.ErrNotExist) {
+			return nil, fmt.Errorf("pipit: train: %w", err)
+		}
+	}
+	if err := os.Rename(best, cfg.Out); err != nil {
+		return nil, fmt.Errorf("pipit: train: %w", err)
+	}
+	if err := fsutil.SyncDir(filepath.Dir(cfg.Out)); err != nil {
+		return nil, err
+	}
+	if err := os.RemoveAll(work); err != nil {
+		return nil, fmt.Errorf("pipit: train: %w", err)
+	}
 	res.Seconds = time.Since(t0).Seconds()
 	return res, nil
 }
@@ -376,28 +603,128 @@ type CrossValidation struct {
 // CrossValidate trains one model per fold of c, each with that fold held
 // out for testing and the next one for validation (cfg's fold fields are
 // ignored), written to cfg.Out + ".fold" + label, and summarises the
-// test and validation accuracies over folds.
+// test and validation accuracies over folds. Every fold model is checked
+// up front (an existing one needs cfg.Replace). The folds train in the
+// work folder cfg.Out+[UnfinishedSuffix], each finished fold recorded
+// there; with cfg.CarryOn an interrupted cross-validation skips the
+// finished folds and carries on the interrupted one. The fold models move
+// next to cfg.Out when every fold has finished.
 func CrossValidate(c *datasets.Corpus, cfg TrainConfig, rep Reporter) (*CrossValidation, error) {
 	rep = orQuiet(rep)
+	if err := cfg.Recipe.check(); err != nil {
+		return nil, err
+	}
+	if c.Folds < 2 {
+		return nil, fmt.Errorf("pipit: %s has %d fold: cross-validation needs at least 2 (3 to keep a validation fold apart from training)", c.Source, c.Folds)
+	}
+	out, teacher := cfg.Out, cfg.Recipe.Teacher
+	if out == "" {
+		return nil, fmt.Errorf("pipit: train: no output model file (--out)")
+	}
+	work := out + UnfinishedSuffix
+	var parts []*datasets.ClipSet
+	for k := 0; k < c.Folds; k++ {
+		ids, _ := c.Split(k)
+		parts = append(parts, c.Identify(ids))
+	}
+	sum, err := json.Marshal(struct {
+		Arch     string
+		FrontEnd features.Config
+		Overlap  float64
+		Pad      string
+		Recipe   Recipe
+		SkipBad  bool
+		Folds    []*datasets.ClipSet
+	}{cfg.Arch, cfg.FrontEnd.Complete(), cfg.Overlap, cfg.Pad, cfg.Recipe, cfg.SkipBad, parts})
+	if err != nil {
+		return nil, fmt.Errorf("pipit: %w", err)
+	}
+	h := sha256.Sum256(sum)
+	digest := hex.EncodeToString(h[:]) + "\n"
+	settings := filepath.Join(work, "settings.sha256")
+	if old, err := os.ReadFile(settings); err == nil {
+		if !cfg.CarryOn {
+			return nil, fmt.Errorf("pipit: train: %s holds an interrupted cross-validation of %s; --carry-on continues it, or delete the folder to start over", work, out)
+		}
+		if string(old) != digest {
+			return nil, fmt.Errorf("pipit: train: %s was started with other settings or clips (network, front end, window, folds, recipe or manifest differ): run with the settings it started with, or delete it to start over", work)
+		}
+	} else if !errors.Is(err, fs.ErrNotExist) {
+		return nil, fmt.Errorf("pipit: train: %w", err)
+	} else {
+		// A fresh cross-validation: every fold model is checked up front
+		// (one carried on was checked when it started).
+		for k := 0; k < c.Folds; k++ {
+			if _, err := checkOut(out+".fold"+c.FoldLabel(k), cfg.Replace, false); err != nil {
+				return nil, err
+			}
+		}
+		if err := os.RemoveAll(work); err != nil {
+			return nil, fmt.Errorf("pipit: train: %w", err)
+		}
+		if err := os.Mkdir(work, 0o755); err != nil {
+			return nil, fmt.Errorf("pipit: train: %w", err)
+		}
+		if err := fsutil.WriteFile(settings, []byte(digest)); err != nil {
+			return nil, fmt.Errorf("pipit: train: %w", err)
+		}
+	}
 	cv := &CrossValidation{}
 	var a, b, v []float64
-	out, teacher := cfg.Out, cfg.Recipe.Teacher
 	for k := 0; k < c.Folds; k++ {
-		rep.Note(fmt.Sprintf("== fold %s (%d of %d)", c.FoldLabel(k), k+1, c.Folds))
-		cfg.TestFold, cfg.ValFold, cfg.Out = c.FoldLabel(k), "", out+".fold"+c.FoldLabel(k)
-		if teacher != "" {
-			cfg.Recipe.Teacher = teacher + ".fold" + c.FoldLabel(k)
-		}
-		if cfg.Checkpoint != "" {
-			cfg.Checkpoint = cfg.Out + ".partial"
-		}
-		r, err := Train(c, cfg, rep)
-		if err != nil {
-			return nil, err
+		label := c.FoldLabel(k)
+		fold := filepath.Join(work, "fold"+label+".pnet")
+		done := filepath.Join(work, "fold"+label+".json")
+		var r *TrainResult
+		if js, err := os.ReadFile(done); err == nil {
+			r = new(TrainResult)
+			if err := json.Unmarshal(js, r); err != nil {
+				return nil, fmt.Errorf("pipit: train: %s: %w (delete %s to start over)", done, err, work)
+			}
+			rep.Note(fmt.Sprintf("== fold %s (%d of %d): finished before, kept", label, k+1, c.Folds))
+		} else {
+			rep.Note(fmt.Sprintf("== fold %s (%d of %d)", label, k+1, c.Folds))
+			fc := cfg
+			fc.TestFold, fc.ValFold, fc.Out, fc.Replace = label, "", fold, true
+			if teacher != "" {
+				fc.Recipe.Teacher = teacher + ".fold" + label
+			}
+			if r, err = Train(c, fc, rep); err != nil {
+				return nil, err
+			}
+			js, err := json.Marshal(r)
+			if err != nil {
+				return nil, fmt.Errorf("pipit: %w", err)
+			}
+			if err := fsutil.WriteFile(done, js); err != nil {
+				return nil, fmt.Errorf("pipit: train: %w", err)
+			}
 		}
 		cv.Folds = append(cv.Folds, r)
 		a, b, v = append(a, r.TestAccuracy), append(b, r.TestClipAccuracy), append(v, r.ValAccuracy)
 		cv.Seconds += r.Seconds
+	}
+	// Every fold has finished: move the models (and logs) into place.
+	for k, r := range cv.Folds {
+		dst := out + ".fold" + c.FoldLabel(k)
+		if cfg.Log {
+			for _, p := range [][2]string{{r.Log, dst + ".log.csv"}, {r.Curves, dst + ".curves.png"}} {
+				if err := os.Rename(p[0], p[1]); err != nil && !errors.Is(err, fs.ErrNotExist) {
+					return nil, fmt.Errorf("pipit: train: %w", err)
+				}
+			}
+			r.Log, r.Curves = dst+".log.csv", dst+".curves.png"
+		}
+		if err := os.Rename(r.Model, dst); err != nil && !errors.Is(err, fs.ErrNotExist) {
+			return nil, fmt.Errorf("pipit: train: %w", err)
+		}
+		r.Model = dst
+	}
+	if err := fsutil.SyncDir(filepath.Dir(out)); err != nil {
+		return nil, err
+	}
+	if err := os.RemoveAll(work); err != nil {
+		return nil, fmt.Errorf("pipit: train: %w", err)
 	}
 	cv.TestAccuracy, cv.TestClipAccuracy, cv.ValAccuracy = meanStd(a), meanStd(b), meanStd(v)
 	return cv, nil

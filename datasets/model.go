@@ -27,6 +27,13 @@ type ModelInfo struct {
 	ValFold  string              `json:"val_fold"`  // fold label
 	Folds    int                 `json:"folds"`
 	FoldSeed uint64              `json:"fold_seed"` // seed used when folds were assigned (corpora without folds)
+	// TestClips and ValClips identify the clips of the test and validation
+	// folds at training time (see [Corpus.Identify]); CalibClips those an
+	// int8 model was calibrated on. Models written before these were
+	// recorded have none, and [ModelInfo.CheckTestFold] cannot check them.
+	TestClips  *ClipSet `json:"test_clips,omitempty"`
+	ValClips   *ClipSet `json:"val_clips,omitempty"`
+	CalibClips *ClipSet `json:"calib_clips,omitempty"`
 }
 
 // Marshal returns m as JSON.

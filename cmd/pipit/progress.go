@@ -165,4 +165,4 @@ func (r *reporter) Done(note string) {
 
 func (r *reporter) Note(line string) { fmt.Fprintln(r.w, line) }
 
-func (r *reporter) Warn(err error) { fmt.Fprintf(r.w, "skipping: %v\n", err) }
+func (r *reporter) Warn(err error) { fmt.Fprintf(r.w, "warning: %v\n", err) }

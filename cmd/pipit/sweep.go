@@ -185,7 +185,7 @@ func sweepTrainer(cacheDir string, chatter io.Writer) sweep.TrainFunc {
 		r.Epochs, r.Batch, r.Patience, r.Seed, r.LR, r.NoAugment = epochs, t.Batch, t.Patience, t.Seed, t.LR, !t.Augment
 		model := filepath.Join(work, fmt.Sprintf("fold%d.pnet", fold))
 		tr, err := pipit.Train(c, pipit.TrainConfig{Arch: arch, FrontEnd: j.FrontEnd, Overlap: t.TrainOverlap, Pad: datasets.PadZeros,
-			TestFold: c.FoldLabel(fold), Recipe: r, CacheDir: cacheDir, Out: model}, nil)
+			TestFold: c.FoldLabel(fold), Recipe: r, CacheDir: cacheDir, Out: model, Replace: true, CarryOn: true}, nil)
 		if err != nil {
 			return nil, err
 		}

@@ -37,14 +37,21 @@ func newTrainCmd() *cobra.Command {
 		Use:   "train --data MANIFEST|FOLDER --out MODEL",
 		Short: "Train a classifier with held-out folds and write the best model",
 		Long: `train cuts the corpus into model windows, trains the network with
-augmentation on every fold but the test and validation folds, stops early
-on the validation fold, keeps the best epoch in MODEL (written atomically
-whenever validation improves), and writes MODEL.log.csv and
-MODEL.curves.png. The front-end settings are recorded in MODEL. Folds are
-named by their labels in the manifest (1..10, "dev", ...); a corpus
-without folds gets --folds folds labelled 0, 1, ...
+augmentation on every fold but the test and validation folds, keeps the
+best epoch on the validation fold, and writes it to MODEL with
+MODEL.log.csv and MODEL.curves.png when the run has ended. The front-end
+settings and the identities of the test and validation clips are recorded
+in MODEL. Folds are named by their labels in the manifest (1..10, "dev",
+...); a corpus without folds gets --folds folds labelled 0, 1, ...
 With --cross-validate it trains one model per fold (MODEL.foldLABEL) and
-reports mean ± standard deviation over folds.`,
+reports mean ± standard deviation over folds.
+
+The run works in MODEL` + pipit.UnfinishedSuffix + `/ (best epoch so far, the state after
+the last finished epoch, log, curves); MODEL itself is only written when
+the run ends, so a run that is killed or fails leaves an existing MODEL as
+it was. An existing MODEL needs --replace. An interrupted run continues
+from its last finished epoch with --carry-on (same flags and data),
+ending bit-identical to a run never interrupted.`,
 		Args: cobra.NoArgs,
 	}
 	f := cmd.Flags()
@@ -67,6 +74,8 @@ reports mean ± standard deviation over folds.`,
 	f.StringVar(&cfg.CacheDir, "cache", defaultCacheDir(), "feature cache directory (empty: no cache)")
 	addRecipeFlags(cmd, r)
 	fe := addFrontEndFlags(cmd)
+	f.BoolVar(&cfg.Replace, "replace", false, "write over an existing MODEL when the run has ended (until then it stays as it is)")
+	f.BoolVar(&cfg.CarryOn, "carry-on", false, "continue the interrupted run left in MODEL"+pipit.UnfinishedSuffix+" from its last finished epoch")
 	f.BoolVar(&cross, "cross-validate", false, "train one model per fold and report mean ± std")
 	f.BoolVar(&asJSON, "json", false, "print the final report as JSON")
 	cmd.MarkFlagRequired("data")

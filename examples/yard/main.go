@@ -42,7 +42,7 @@ func main() {
 	recipe.Epochs, recipe.Batch = 40, 16
 	model := filepath.Join(dir, "model.pnet")
 	tr, err := pipit.Train(corpus, pipit.TrainConfig{Arch: "separable", FrontEnd: features.DefaultConfig(), Overlap: 0.5,
-		TestFold: "0", ValFold: "1", Recipe: recipe, Out: model}, nil)
+		TestFold: "0", ValFold: "1", Recipe: recipe, Out: model, Replace: true}, nil)
 	check(err)
 	fmt.Printf("trained %d epochs (best %d): validation fold %.3f, test fold %.3f (clips %.3f)\n",
 		tr.Epochs, tr.BestEpoch, tr.ValAccuracy, tr.TestAccuracy, tr.TestClipAccuracy)

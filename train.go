@@ -3,6 +3,7 @@ package pipit
 import (
 	"bytes"
 	"crypto/sha256"
+	"encoding/csv"
 	"encoding/hex"
 	"encoding/json"
 	"errors"
@@ -12,6 +13,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"time"
 
@@ -735,11 +737,15 @@ func CrossValidate(c *datasets.Corpus, cfg TrainConfig, rep Reporter) (*CrossVal
 // to pngPath, both atomically.
 func WriteTrainLog(csvPath, pngPath string, hist []nn.EpochStats) error {
 	err := fsutil.WriteWith(csvPath, func(w io.Writer) error {
-		fmt.Fprintln(w, "epoch,train_loss,train_window_accuracy,val_fold_loss,val_fold_window_accuracy,learning_rate,seconds,windows_per_second,val_fold_seconds,best_so_far")
+		cw := csv.NewWriter(w)
+		cw.Write([]string{"epoch", "train_loss", "train_window_accuracy", "val_fold_loss", "val_fold_window_accuracy", "learning_rate", "seconds", "windows_per_second", "val_fold_seconds", "best_so_far"})
+		f := func(format string, v float64) string { return fmt.Sprintf(format, v) }
 		for _, e := range hist {
-			fmt.Fprintf(w, "%d,%.6f,%.6f,%.6f,%.6f,%.6g,%.3f,%.1f,%.3f,%v\n", e.Epoch, e.Loss, e.Accuracy, e.ValLoss, e.ValAcc, e.LR, e.Seconds, e.SamplesSec, e.ValSeconds, e.Best)
+			cw.Write([]string{strconv.Itoa(e.Epoch), f("%.6f", e.Loss), f("%.6f", e.Accuracy), f("%.6f", e.ValLoss), f("%.6f", e.ValAcc), f("%.6g", e.LR),
+				f("%.3f", e.Seconds), f("%.1f", e.SamplesSec), f("%.3f", e.ValSeconds), strconv.FormatBool(e.Best)})
 		}
-		return nil
+		cw.Flush()
+		return cw.Error()
 	})
 	if err != nil {
 		return err

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"strings"
 
 	"github.com/spf13/cobra"
 )
@@ -14,7 +15,11 @@ import (
 func main() {
 	stderr := newConsole(os.Stderr) // an error never lands on a live status line
 	if err := newRootCmd(os.Stdout, stderr).Execute(); err != nil {
-		fmt.Fprintln(stderr, "pipit:", err)
+		msg := err.Error()
+		if !strings.HasPrefix(msg, "pipit: ") { // library errors already say where they come from
+			msg = "pipit: " + msg
+		}
+		fmt.Fprintln(stderr, msg)
 		os.Exit(1)
 	}
 }

@@ -75,6 +75,9 @@ func ReadManifest(path, groupColumn string) (*Corpus, error) {
 // numbers in errors are physical lines of data, counting comments, blank
 // lines and the lines of quoted fields that span several.
 func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus, error) {
+	// A UTF-8 byte-order mark, as some spreadsheet programs write, is not
+	// part of the first column's name.
+	data = bytes.TrimPrefix(data, []byte("\xef\xbb\xbf"))
 	r := csv.NewReader(bytes.NewReader(data))
 	r.Comment = '#'
 	r.FieldsPerRecord = -1
@@ -163,6 +166,34 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 	}
 	if len(rows) == 0 {
 		return nil, &ManifestError{Name: name, Line: line, Reason: "no clips"}
+	}
+	// One file (or span of a file) listed twice counts twice in training
+	// and can land in two folds; with two labels it is contradictory.
+	type spanKey struct {
+		path       string
+		start, end float64
+	}
+	seenAt := map[spanKey]int{}
+	for i, rw := range rows {
+		k := spanKey{filepath.Clean(rw.path), rw.start, rw.end}
+		j, dup := seenAt[k]
+		if !dup {
+			seenAt[k] = i
+			continue
+		}
+		first := rows[j]
+		what := "the same file and span as line " + strconv.Itoa(first.line)
+		if rw.start != 0 || rw.end != 0 {
+			what = fmt.Sprintf("the same file and span (%g–%g s) as line %d", rw.start, rw.end, first.line)
+		}
+		switch {
+		case first.label != rw.label:
+			return nil, &ManifestError{Name: name, Line: rw.line, Reason: fmt.Sprintf("%s with label %q, %s with label %q: one clip cannot have two labels", filepath.Base(rw.path), rw.label, what, first.label)}
+		case first.fold != rw.fold:
+			return nil, &ManifestError{Name: name, Line: rw.line, Reason: fmt.Sprintf("%s in fold %q, %s in fold %q: one clip in two folds leaks between training and test", filepath.Base(rw.path), rw.fold, what, first.fold)}
+		default:
+			return nil, &ManifestError{Name: name, Line: rw.line, Reason: fmt.Sprintf("%s repeats %s: remove the duplicate row", filepath.Base(rw.path), what)}
+		}
 	}
 	withFold := 0
 	foldSeen := map[string]bool{}

@@ -227,3 +227,36 @@ func TestManifestErrorLines(t *testing.T) {
 		t.Errorf("missing file: error %v, want line 5 naming nothere.wav", err)
 	}
 }
+
+// TestManifestDuplicatesAndBOM: rows that list one clip twice are
+// refused with the lines of both (same label and fold: a duplicate; two
+// labels; two folds), the same file as two spans is fine, and a leading
+// UTF-8 byte-order mark is ignored.
+func TestManifestDuplicatesAndBOM(t *testing.T) {
+	var me *ManifestError
+	cases := []struct {
+		name, body, want string
+		line             int
+	}{
+		{"duplicate", "path,label,fold\nsaw1.wav,saw,0\nfork1.wav,forklift,1\n./saw1.wav,saw,0\n", "repeats the same file and span as line 2", 4},
+		{"two labels", "path,label,fold\nsaw1.wav,saw,0\nfork1.wav,forklift,1\nsaw1.wav,chipper,0\n", "two labels", 4},
+		{"two folds", "path,label,fold\nsaw1.wav,saw,0\nsaw1.wav,saw,1\n", "two folds", 3},
+		{"same span twice", "path,label,start,end\nday.wav,saw,0,1\nday.wav,forklift,1,2\nday.wav,chipper,0,1\n", "(0–1 s) as line 2", 4},
+	}
+	for _, tc := range cases {
+		_, err := ParseManifest("yard.csv", []byte(tc.body), "/data", "")
+		if !errors.As(err, &me) || me.Line != tc.line || !strings.Contains(err.Error(), tc.want) {
+			t.Errorf("%s: error %v, want one at line %d saying %q", tc.name, err, tc.line, tc.want)
+		}
+	}
+	if _, err := ParseManifest("yard.csv", []byte("path,label,start,end\nday.wav,saw,0,1\nday.wav,forklift,1,2\n"), "/data", ""); err != nil {
+		t.Errorf("two spans of one file: %v", err)
+	}
+	c, err := ParseManifest("yard.csv", []byte("\xef\xbb\xbfpath,label\nsaw1.wav,saw\nfork1.wav,forklift\n"), "/data", "")
+	if err != nil {
+		t.Fatalf("manifest with a byte-order mark: %v", err)
+	}
+	if len(c.Clips) != 2 || c.Classes[0] != "forklift" {
+		t.Errorf("manifest with a byte-order mark: %d clips, classes %v", len(c.Clips), c.Classes)
+	}
+}

@@ -13,6 +13,9 @@ func FuzzParseManifest(f *testing.F) {
 	f.Add([]byte("label,path\n\"q,uoted\",x\n"))
 	f.Add([]byte("path,label,fold\na.wav,x,99999999999999999999\n"))
 	f.Add([]byte(""))
+	f.Add([]byte("\xef\xbb\xbfpath,label\nsaw1.wav,saw\n"))
+	f.Add([]byte("path,label,fold\nsaw1.wav,saw,0\n./saw1.wav,saw,0\n"))
+	f.Add([]byte("path,label,fold\nsaw1.wav,saw,0\nsaw1.wav,chipper,1\n"))
 	f.Fuzz(func(t *testing.T, data []byte) {
 		c, err := ParseManifest("fuzz.csv", data, "/base", "")
 		if err != nil {

@@ -325,3 +325,53 @@ func TestCrossValidateCarriesOn(t *testing.T) {
 		t.Errorf("work folder left: %v", err)
 	}
 }
+
+// TestTrainRefusesClassWithoutTrainingClips: a class whose clips all sit
+// in the test and validation folds cannot be learnt; and a manifest with
+// one fold is refused with a message about folds, not about a
+// validation fold the user never named.
+func TestTrainRefusesClassWithoutTrainingClips(t *testing.T) {
+	c, manifest := smallCorpus(t)
+	lines := strings.Split(strings.TrimSpace(string(mustRead(t, manifest))), "\n")
+	head := strings.Split(lines[0], ",")
+	col, lab := -1, -1
+	for i, h := range head {
+		switch h {
+		case "fold":
+			col = i
+		case "label":
+			lab = i
+		}
+	}
+	one, moved := []string{lines[0]}, []string{lines[0]}
+	for _, l := range lines[1:] {
+		f := strings.Split(l, ",")
+		g := append([]string(nil), f...)
+		if f[lab] == c.Classes[0] && f[col] == "2" {
+			f[col] = "0" // the class's training clips go to the test fold
+		}
+		moved = append(moved, strings.Join(f, ","))
+		g[col] = "0"
+		one = append(one, strings.Join(g, ","))
+	}
+	dir := filepath.Dir(manifest)
+	for _, tc := range []struct{ name, want string }{{"moved.csv", "no clips in the training folds"}, {"one.csv", "training needs at least 3"}} {
+		rows := moved
+		if tc.name == "one.csv" {
+			rows = one
+		}
+		p := filepath.Join(dir, tc.name)
+		if err := os.WriteFile(p, []byte(strings.Join(rows, "\n")+"\n"), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		cc, err := OpenCorpus(Data{Path: p}, 0, 1)
+		if err != nil {
+			t.Fatal(err)
+		}
+		cfg := smallTrain(filepath.Join(t.TempDir(), "m.pnet"))
+		cfg.ValFold = ""
+		if _, err := Train(cc, cfg, nil); err == nil || !strings.Contains(err.Error(), tc.want) {
+			t.Errorf("%s: err %v, want %q", tc.name, err, tc.want)
+		}
+	}
+}

@@ -64,6 +64,14 @@ type Set struct {
 	bank    *noiseBank
 }
 
+// MinClipShare bounds padding: a clip shorter than 1/MinClipShare of the
+// model window is refused rather than padded (a 1-sample clip padded to a
+// second of silence is a labelled silence, not a sound of its class).
+// The bound is our choice (common practice is to drop such clips).
+const MinClipShare = 4
+
+const shareName = "quarter"
+
 // Load reads, resamples, pads and extracts the clips ids of c and cuts
 // them into windows. Each clip's log-mel matrix is taken from opts.Cache
 // when present there; the matrices computed are added to it as one pack.
@@ -216,6 +224,11 @@ func (l *clipLoader) load(cl Clip) loadResult {
 	}
 	if lo >= hi {
 		return loadResult{err: corpusErr("%s: span %g..%g s is outside the %.3f s recording", cl.Path, cl.Start, cl.End, a.Seconds())}
+	}
+	if n := hi - lo; n < l.need/MinClipShare {
+		rate := float64(fe.SampleRateHz)
+		return loadResult{err: corpusErr("%s: clip of %.3f s (%d samples) is shorter than a %s of the %.3f s model window, too little sound to pad into a window; remove it from the manifest (or skip bad clips)",
+			cl.Path, float64(n)/rate, n, shareName, float64(l.need)/rate)}
 	}
 	x = padClip(x[lo:hi], l.need, l.opts.Window.Pad)
 	r.d = &clipData{}

@@ -279,3 +279,37 @@ func TestAugmentAudioEdges(t *testing.T) {
 		t.Errorf("shifts seen %v, want all of -3..3", seen)
 	}
 }
+
+// TestLoadRefusesTinyClip: a clip far shorter than the model window (one
+// sample, and 0.2 s of a 1 s window) is refused with its duration, not
+// padded into a window of silence; 0.3 s, over a quarter, is padded.
+func TestLoadRefusesTinyClip(t *testing.T) {
+	dir := t.TempDir()
+	for name, n := range map[string]int{"tick.wav": 1, "short.wav": 3200, "ok.wav": 4800, "saw.wav": 16000} {
+		x := make([]float32, n)
+		for i := range x {
+			x[i] = 0.1 * float32(i%7)
+		}
+		if err := features.WriteWAVFile(filepath.Join(dir, name), x, 16000); err != nil {
+			t.Fatal(err)
+		}
+	}
+	opts := Options{FrontEnd: features.DefaultConfig(), Window: WindowConfig{Frames: 61, Overlap: 0.5, Pad: PadZeros}}
+	for _, tc := range []struct {
+		file string
+		ok   bool
+	}{{"tick.wav", false}, {"short.wav", false}, {"ok.wav", true}} {
+		m := "path,label\n" + tc.file + ",chipper\nsaw.wav,saw\n"
+		c, err := ParseManifest(filepath.Join(dir, "m.csv"), []byte(m), dir, "")
+		if err != nil {
+			t.Fatal(err)
+		}
+		_, err = Load(c, allIDs(c), opts)
+		switch {
+		case tc.ok && err != nil:
+			t.Errorf("%s: %v", tc.file, err)
+		case !tc.ok && (err == nil || !strings.Contains(err.Error(), "shorter than a quarter") || !strings.Contains(err.Error(), tc.file)):
+			t.Errorf("%s: err %v, want a refusal naming the file and the quarter-window bound", tc.file, err)
+		}
+	}
+}

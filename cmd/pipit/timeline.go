@@ -1,6 +1,7 @@
 package main
 
 import (
+	"encoding/csv"
 	"fmt"
 	"io"
 	"path/filepath"
@@ -46,13 +47,18 @@ likely class. Classifications are indicative, not a certified measurement.`,
 	}
 	cmd.Flags().StringVar(&model, "model", "", "float or int8 model (required)")
 	cmd.Flags().StringVar(&out, "out", "", "output prefix (default: IN without .wav)")
-	cmd.Flags().Float64Var(&overlap, "overlap", -1, "window overlap in [0, 1) (default: the model's)")
+	cmd.Flags().Float64Var(&overlap, "overlap", 0, "window overlap, at least 0 and below 1 (default: the model's)")
 	cmd.Flags().BoolVar(&asJSON, "json", false, "print the report as JSON")
 	cmd.MarkFlagRequired("model")
 	cmd.RunE = func(cmd *cobra.Command, args []string) error {
 		in := args[0]
 		if out == "" {
 			out = strings.TrimSuffix(in, filepath.Ext(in))
+		}
+		if !cmd.Flags().Changed("overlap") {
+			overlap = -1 // the model's
+		} else if !(overlap >= 0 && overlap < 1) {
+			return fmt.Errorf("--overlap %g: want at least 0 and below 1 (0.5: windows start half a window apart)", overlap)
 		}
 		rep, err := runTimeline(model, in, out, overlap)
 		if err != nil {
@@ -103,17 +109,20 @@ func runTimeline(model, in, out string, overlap float64) (*timelineReport, error
 		rep.ClassTotal[s.Label] += s.EndSec - s.StartSec
 	}
 	err = fsutil.WriteWith(rep.CSV, func(w io.Writer) error {
-		fmt.Fprintf(w, "start_s,end_s,class,probability,%s\n", strings.Join(info.Classes, ","))
+		cw := csv.NewWriter(w)
+		cw.Write(append([]string{"start_s", "end_s", "class", "probability"}, info.Classes...))
+		row := make([]string, 4+L)
 		for i, st := range rec.StartSec {
 			p := probs[i*L : (i+1)*L]
 			best := nn.Argmax(p)
-			fmt.Fprintf(w, "%.3f,%.3f,%s,%.4f", st, st+rec.WindowSec, info.Classes[best], p[best])
-			for _, v := range p {
-				fmt.Fprintf(w, ",%.4f", v)
+			row[0], row[1], row[2], row[3] = fmt.Sprintf("%.3f", st), fmt.Sprintf("%.3f", st+rec.WindowSec), info.Classes[best], fmt.Sprintf("%.4f", p[best])
+			for k, v := range p {
+				row[4+k] = fmt.Sprintf("%.4f", v)
 			}
-			fmt.Fprintln(w)
+			cw.Write(row)
 		}
-		return nil
+		cw.Flush()
+		return cw.Error()
 	})
 	if err != nil {
 		return nil, err

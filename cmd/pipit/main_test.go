@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"github.com/pipit-audio/pipit/features"
 	"github.com/pipit-audio/pipit/quant/cref"
 	"os"
 	"path/filepath"
@@ -41,8 +42,8 @@ func TestMelspecOnEveryFixture(t *testing.T) {
 			}
 			// every fixture is a 0.5-amplitude sine (mixes of several for the
 			// multichannel ones): at most 20·lg 0.5 − 3.01 ≈ −9.0 dB FS A-weighted
-			if rep.LevelA > -8.9 || rep.LevelA < -40 {
-				t.Errorf("A-weighted level %.2f dB FS implausible for a 0.5-amplitude sine", rep.LevelA)
+			if rep.LevelA == nil || *rep.LevelA > -8.9 || *rep.LevelA < -40 {
+				t.Errorf("A-weighted level %v dB FS implausible for a 0.5-amplitude sine", rep.LevelA)
 			}
 			if rep.Bands != 40 || rep.Settings.SampleRateHz != 16000 || rep.Settings.FMaxHz != 8000 {
 				t.Errorf("report %+v: want 40 bands at 16 kHz to 8 kHz", rep)
@@ -191,5 +192,31 @@ func TestBudget(t *testing.T) {
 	os.WriteFile(p, []byte("conv out=4\n"), 0o644)
 	if _, err := run(t, "budget", "--arch", p); err == nil || !strings.Contains(err.Error(), "tiny.spec") {
 		t.Errorf("bad spec: error %v, want one naming the file", err)
+	}
+}
+
+// TestMelspecSilence: digital silence has no level; --json must say null
+// (JSON has no −Inf) and the command must succeed with both outputs.
+func TestMelspecSilence(t *testing.T) {
+	dir := t.TempDir()
+	wav := filepath.Join(dir, "quiet-yard.wav")
+	if err := features.WriteWAVFile(wav, make([]float32, 16000), 16000); err != nil {
+		t.Fatal(err)
+	}
+	out, err := run(t, "melspec", wav, "--out", filepath.Join(dir, "q"), "--json")
+	if err != nil {
+		t.Fatalf("melspec on silence: %v", err)
+	}
+	var raw map[string]any
+	if err := json.Unmarshal([]byte(out), &raw); err != nil {
+		t.Fatalf("--json output %q: %v", out, err)
+	}
+	if v, ok := raw["level_a_dbfs"]; !ok || v != nil {
+		t.Errorf("level_a_dbfs = %v (present %v), want null", v, ok)
+	}
+	for _, p := range []string{"q.csv", "q.png"} {
+		if _, err := os.Stat(filepath.Join(dir, p)); err != nil {
+			t.Error(err)
+		}
 	}
 }

@@ -3,6 +3,7 @@ package main
 import (
 	"fmt"
 	"io"
+	"math"
 	"path/filepath"
 	"strconv"
 	"strings"
@@ -20,7 +21,7 @@ type melspecReport struct {
 	InputRateHz int             `json:"input_rate_hz"`
 	Channels    int             `json:"input_channels"`
 	Seconds     float64         `json:"seconds"`
-	LevelA      float64         `json:"level_a_dbfs"` // indicative A-weighted level of the input, dB re full scale; not a sound pressure level
+	LevelA      *float64        `json:"level_a_dbfs"` // indicative A-weighted level of the input, dB re full scale; not a sound pressure level; null for digital silence
 	Settings    features.Config `json:"settings"`
 	Frames      int             `json:"frames"`
 	Bands       int             `json:"bands"`
@@ -59,7 +60,11 @@ per band, no header) and PREFIX.png (time on x, bands on y, colour bar).`,
 			return printJSON(cmd.OutOrStdout(), rep)
 		}
 		fmt.Fprintf(cmd.OutOrStdout(), "%s: %.2f s at %d Hz, %d ch → %d frames × %d bands\n", rep.Input, rep.Seconds, rep.InputRateHz, rep.Channels, rep.Frames, rep.Bands)
-		fmt.Fprintf(cmd.OutOrStdout(), "A-weighted level %.1f dB FS (indicative digital level, not a sound pressure level)\nwrote %s\nwrote %s\n", rep.LevelA, rep.CSV, rep.PNG)
+		level := "none: the input is digital silence"
+		if rep.LevelA != nil {
+			level = fmt.Sprintf("%.1f dB FS", *rep.LevelA)
+		}
+		fmt.Fprintf(cmd.OutOrStdout(), "A-weighted level %s (indicative digital level, not a sound pressure level)\nwrote %s\nwrote %s\n", level, rep.CSV, rep.PNG)
 		return nil
 	}
 	return cmd
@@ -83,10 +88,12 @@ func runMelspec(in, prefix string, cfg features.Config) (*melspecReport, error) 
 		return nil, fmt.Errorf("%s: %w", in, err)
 	}
 	rep := &melspecReport{
-		LevelA: levelA,
-		Input:  in, InputRateHz: a.SampleRateHz, Channels: a.Channels, Seconds: a.Seconds(),
+		Input: in, InputRateHz: a.SampleRateHz, Channels: a.Channels, Seconds: a.Seconds(),
 		Settings: cfg, Bands: m.Shape()[0], Frames: m.Shape()[1],
 		CSV: prefix + ".csv", PNG: prefix + ".png",
+	}
+	if !math.IsInf(levelA, 0) && !math.IsNaN(levelA) {
+		rep.LevelA = &levelA // silence has no level: null in JSON
 	}
 	if err := writeMelCSV(rep.CSV, m); err != nil {
 		return nil, err

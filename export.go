@@ -2,9 +2,12 @@ package pipit
 
 import (
 	"encoding/json"
+	"errors"
 	"fmt"
+	"io/fs"
 	"os"
 	"path/filepath"
+	"strings"
 
 	"github.com/pipit-audio/pipit/datasets"
 	"github.com/pipit-audio/pipit/features"
@@ -43,19 +46,24 @@ type ExportResult struct {
 	CRC32         string   `json:"crc32"`
 }
 
-// Export writes q into dir (created if needed): the blob, the scheme
-// description, the C header of the network, the C reference runtime and,
-// when q records a front end the C front end supports, the C front end
-// with its generated tables. Every file is written atomically; the blob
-// and scheme are then read back from disk and imported, so a result
-// without error is an export the integer engine can run.
+// Export writes q into dir: the blob, the scheme description, the C
+// header of the network, the C reference runtime and, when q records a
+// front end the C front end supports, the C front end with its generated
+// tables. The set is written as a whole: into a fresh folder beside dir,
+// read back from disk and imported there (so a result without error is an
+// export the integer engine can run), then swapped into place in one step
+// (an exchange of the two folders where the system has one). Whatever happens to the call, dir holds either the
+// previous export complete or the new one complete, never a mix. An
+// existing dir that is not an export of ours is refused; leftovers of
+// earlier interrupted exports beside dir are cleaned up first.
 func Export(q *quant.Model, dir string) (*ExportResult, error) {
 	blob, doc, err := quant.Export(q)
 	if err != nil {
 		return nil, err
 	}
-	if err := os.MkdirAll(dir, 0o755); err != nil {
-		return nil, fmt.Errorf("pipit: %w", err)
+	dir = filepath.Clean(dir)
+	if err := prepareExportDir(dir); err != nil {
+		return nil, err
 	}
 	r := &ExportResult{Dir: dir, Blob: filepath.Join(dir, BlobFile), Scheme: filepath.Join(dir, SchemeFile), Header: filepath.Join(dir, CPrefix+".h"),
 		Runtime:    []string{filepath.Join(dir, "pipit_rt.h"), filepath.Join(dir, "pipit_rt.c"), filepath.Join(dir, "pipit_rt_fast.h"), filepath.Join(dir, "pipit_rt_fast.c")},
@@ -86,16 +94,94 @@ func Export(q *quant.Model, dir string) (*ExportResult, error) {
 		return nil, err
 	}
 	files[r.Scheme] = scheme
+	tmp, err := os.MkdirTemp(filepath.Dir(dir), "."+filepath.Base(dir)+exportNew)
+	if err != nil {
+		return nil, fmt.Errorf("pipit: export: %w", err)
+	}
+	defer os.RemoveAll(tmp) // after the swap: the previous export, or nothing
+	if err := os.Chmod(tmp, 0o755); err != nil {
+		return nil, fmt.Errorf("pipit: export: %w", err)
+	}
 	for path, data := range files {
-		if err := fsutil.WriteFile(path, data); err != nil {
+		if err := fsutil.WriteFile(filepath.Join(tmp, filepath.Base(path)), data); err != nil {
 			return nil, fmt.Errorf("pipit: %w", err)
 		}
 	}
 	// Read back what was written: the files, not the memory, are the export.
-	if _, err := quant.ImportFiles(r.Blob, r.Scheme); err != nil {
+	if _, err := quant.ImportFiles(filepath.Join(tmp, BlobFile), filepath.Join(tmp, SchemeFile)); err != nil {
 		return nil, fmt.Errorf("pipit: export check: %w", err)
 	}
+	if err := fsutil.SyncDir(tmp); err != nil {
+		return nil, err
+	}
+	if err := swapInto(tmp, dir); err != nil {
+		return nil, fmt.Errorf("pipit: export: %w", err)
+	}
+	if err := fsutil.SyncDir(filepath.Dir(dir)); err != nil {
+		return nil, err
+	}
 	return r, nil
+}
+
+// Name parts of the folders an export works in beside its target dir:
+// ".DIR" + exportNew + random holds the new set being written;
+// ".DIR" + exportOld + random the previous set while it is swapped out
+// where the system cannot exchange two folders in one step.
+const (
+	exportNew = ".pipit-new-"
+	exportOld = ".pipit-old-"
+)
+
+// prepareExportDir checks dir before an export: its parent must exist,
+// and dir must be missing, empty or an export (it holds SchemeFile).
+// Leftovers of interrupted exports beside it are removed; a previous
+// export swapped out by an interrupted fallback swap is put back first.
+func prepareExportDir(dir string) error {
+	parent, base := filepath.Dir(dir), filepath.Base(dir)
+	if fi, err := os.Stat(parent); err != nil || !fi.IsDir() {
+		return fmt.Errorf("pipit: export: folder %s does not exist", parent)
+	}
+	entries, err := os.ReadDir(parent)
+	if err != nil {
+		return fmt.Errorf("pipit: export: %w", err)
+	}
+	_, statErr := os.Stat(dir)
+	for _, e := range entries {
+		n := e.Name()
+		switch {
+		case strings.HasPrefix(n, "."+base+exportOld):
+			if errors.Is(statErr, fs.ErrNotExist) {
+				if err := os.Rename(filepath.Join(parent, n), dir); err != nil {
+					return fmt.Errorf("pipit: export: putting back the previous export: %w", err)
+				}
+				statErr = nil
+				continue
+			}
+			fallthrough
+		case strings.HasPrefix(n, "."+base+exportNew):
+			if err := os.RemoveAll(filepath.Join(parent, n)); err != nil {
+				return fmt.Errorf("pipit: export: removing a leftover of an interrupted export: %w", err)
+			}
+		}
+	}
+	fi, err := os.Stat(dir)
+	switch {
+	case errors.Is(err, fs.ErrNotExist):
+		return nil
+	case err != nil:
+		return fmt.Errorf("pipit: export: %w", err)
+	case !fi.IsDir():
+		return fmt.Errorf("pipit: export: %s exists and is not a folder", dir)
+	}
+	if _, err := os.Stat(filepath.Join(dir, SchemeFile)); err == nil {
+		return nil
+	}
+	if names, err := os.ReadDir(dir); err != nil {
+		return fmt.Errorf("pipit: export: %w", err)
+	} else if len(names) > 0 {
+		return fmt.Errorf("pipit: export: %s holds files but no %s: it is not an export, and an export replaces the whole folder; choose another folder", dir, SchemeFile)
+	}
+	return nil
 }
 
 // DeviceFrontEnd returns the C front end of q from its model info (front

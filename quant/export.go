@@ -1,7 +1,9 @@
 package quant
 
 import (
+	"crypto/sha256"
 	"encoding/binary"
+	"encoding/hex"
 	"encoding/json"
 	"fmt"
 	"hash/crc32"
@@ -48,10 +50,12 @@ const (
 
 var sectionNames = map[uint32]string{sectionWeight: "weights", sectionBias: "bias", sectionMult: "multiplier", sectionShift: "shift"}
 
-// SchemeVersion is the version of the scheme description. Version 2 gives
-// the weight granularity as a field of its own (quantisation.weight_granularity);
-// version 1 stated it only inside the prose of quantisation.weights.
-const SchemeVersion = 2
+// SchemeVersion is the version of the scheme description. Version 3
+// seals the description with a SHA-256 of its own content
+// (content_sha256); version 2 gave the weight granularity as a field of
+// its own (quantisation.weight_granularity); version 1 stated it only
+// inside the prose of quantisation.weights.
+const SchemeVersion = 3
 
 // SectionRef locates one blob section of a layer.
 type SectionRef struct {
@@ -107,6 +111,11 @@ type SchemeDoc struct {
 	// FrontEnd describes the generated C front end (RAM, tables, flops),
 	// filled by the caller that generates it (opaque to quant).
 	FrontEnd json.RawMessage `json:"device_front_end,omitempty"`
+	// Seal is the SHA-256 (hex) of the description as MarshalScheme writes
+	// it with Seal empty. MarshalScheme sets it; Import recomputes it and
+	// refuses a description edited after export (a clamp, a scale, the
+	// class order: values the blob's CRC does not cover).
+	Seal string `json:"content_sha256"`
 }
 
 // BlobInfo identifies the blob a scheme belongs to.
@@ -281,11 +290,28 @@ func layerMACs(l *Layer) int64 { return macCount(l.Op, l.Geom, l.OutShape.C, len
 
 // MarshalScheme returns the scheme as indented JSON.
 func (d *SchemeDoc) MarshalScheme() ([]byte, error) {
+	seal, err := d.contentSeal()
+	if err != nil {
+		return nil, err
+	}
+	d.Seal = seal
 	b, err := json.MarshalIndent(d, "", "  ")
 	if err != nil {
 		return nil, fmt.Errorf("quant: %w", err)
 	}
 	return append(b, '\n'), nil
+}
+
+// contentSeal returns the SHA-256 of d's JSON with Seal empty.
+func (d *SchemeDoc) contentSeal() (string, error) {
+	c := *d
+	c.Seal = ""
+	b, err := json.MarshalIndent(&c, "", "  ")
+	if err != nil {
+		return "", fmt.Errorf("quant: %w", err)
+	}
+	h := sha256.Sum256(b)
+	return hex.EncodeToString(h[:]), nil
 }
 
 // CHeader returns a C99 header holding the blob as a const array and the

@@ -88,6 +88,11 @@ func Import(blob, scheme []byte) (*Model, error) {
 	if d.Version != SchemeVersion {
 		return nil, &FormatError{Name: "scheme", Reason: fmt.Sprintf("version %d, this pipit reads %d", d.Version, SchemeVersion), Err: ErrUnsupportedVersion}
 	}
+	if seal, err := d.contentSeal(); err != nil {
+		return nil, err
+	} else if d.Seal != seal {
+		return nil, bad("content_sha256 %q does not match the content (%s): the description was edited after export; export the model again", d.Seal, seal)
+	}
 	if d.Blob.Bytes != len(blob) || d.Blob.CRC32 != fmt.Sprintf("%08x", crc32.ChecksumIEEE(blob)) {
 		return nil, bad("describes a blob of %d bytes with CRC %s, not this one (%d bytes, %08x)", d.Blob.Bytes, d.Blob.CRC32, len(blob), crc32.ChecksumIEEE(blob))
 	}

@@ -11,7 +11,7 @@ import (
 
 // TestRoomResponseDecay measures the reverberation time of roomResponse the
 // way ISO 3382-2:2008 does: Schroeder's backward integration of the
-// squared impulse response (Schroeder 1965, "New Method of Measuring
+// squared room response (Schroeder 1965, "New Method of Measuring
 // Reverberation Time", JASA 37(3):409), a least-squares line through the
 // decay curve from −5 to −25 dB, and T20 = 60 dB over its slope. Expected
 // within 10 % (common practice): the noise of one realisation bends the
@@ -47,7 +47,7 @@ func TestRoomResponseDecay(t *testing.T) {
 		}
 		slope := (n*sxy - sx*sy) / (n*sxx - sx*sx) // dB per second
 		if t20 := -60 / slope; math.Abs(t20-c.rt60) > 0.1*c.rt60 {
-			t.Errorf("RT60 %g s: T20 of the impulse %.3f s", c.rt60, t20)
+			t.Errorf("RT60 %g s: T20 of the room response %.3f s", c.rt60, t20)
 		}
 	}
 }

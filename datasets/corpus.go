@@ -46,7 +46,10 @@ const MaxFolds = 1000
 // columns path and label, and optionally fold, start, end and the column
 // named by groupColumn (empty: "group" if present). Paths are relative to
 // the manifest's folder unless absolute; extra columns are ignored; lines
-// starting with '#' are comments. Folds in the file are labels: integers
+// starting with '#' are comments, and blank lines (or lines of only spaces
+// and commas before the header) are skipped. The text is UTF-8; a
+// byte-order mark at its start is skipped, and UTF-16 text is refused.
+// Folds in the file are labels: integers
 // from any start (1..10 as many public corpora number them) or any
 // strings, at most [MaxFolds] of them; every row must then have one (see
 // [Corpus.FoldLabels]). A clip's group is the group column if given, else
@@ -75,13 +78,20 @@ func ReadManifest(path, groupColumn string) (*Corpus, error) {
 // numbers in errors are physical lines of data, counting comments, blank
 // lines and the lines of quoted fields that span several.
 func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus, error) {
+	data = bytes.TrimPrefix(data, []byte(utf8BOM))
+	if bytes.HasPrefix(data, []byte("\xff\xfe")) || bytes.HasPrefix(data, []byte("\xfe\xff")) {
+		return nil, &ManifestError{Name: name, Line: 1, Reason: "the file is UTF-16 text (it starts with a UTF-16 byte-order mark); save it as UTF-8"}
+	}
 	r := csv.NewReader(bytes.NewReader(data))
 	r.Comment = '#'
 	r.FieldsPerRecord = -1
 	r.TrimLeadingSpace = true
 	header, err := r.Read()
+	for err == nil && blankRecord(header) { // lines of spaces or bare commas before the header
+		header, err = r.Read()
+	}
 	if err == io.EOF {
-		return nil, &ManifestError{Name: name, Line: 1, Reason: "empty manifest"}
+		return nil, &ManifestError{Name: name, Line: 1, Reason: "empty manifest: no header row (the first row names the columns, at least path and label, then one row per clip)"}
 	}
 	if err != nil {
 		return nil, &ManifestError{Name: name, Line: csvLine(err, 1), Reason: err.Error()}
@@ -162,7 +172,7 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 		rows = append(rows, rw)
 	}
 	if len(rows) == 0 {
-		return nil, &ManifestError{Name: name, Line: line, Reason: "no clips"}
+		return nil, &ManifestError{Name: name, Line: headerLine, Reason: "no clips: the header is the only row (add one row per clip)"}
 	}
 	withFold := 0
 	foldSeen := map[string]bool{}
@@ -237,6 +247,20 @@ func (c *Corpus) checkFolds() error {
 		}
 	}
 	return nil
+}
+
+// utf8BOM is the UTF-8 byte-order mark some editors and spreadsheets
+// write at the start of a text file.
+const utf8BOM = "\ufeff"
+
+// blankRecord reports whether every field of rec is empty or spaces.
+func blankRecord(rec []string) bool {
+	for _, f := range rec {
+		if strings.TrimSpace(f) != "" {
+			return false
+		}
+	}
+	return true
 }
 
 // csvLine returns the physical line of a csv error, or def.

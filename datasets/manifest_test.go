@@ -9,13 +9,15 @@ import (
 )
 
 // manifestErr parses m (relative paths under /yard) and returns the
-// *ManifestError it fails with, failing the test if it fails otherwise.
+// *ManifestError it fails with; when it fails otherwise or not at all,
+// the test fails and the result is an empty *ManifestError.
 func manifestErr(t *testing.T, m string) *ManifestError {
 	t.Helper()
 	_, err := ParseManifest("yard.csv", []byte(m), "/yard", "")
 	var me *ManifestError
 	if !errors.As(err, &me) {
-		t.Fatalf("manifest %q: error %v, want a *ManifestError", m, err)
+		t.Errorf("manifest %q: error %v, want a *ManifestError", m, err)
+		return &ManifestError{}
 	}
 	if !errors.Is(err, ErrCorpus) || !strings.Contains(err.Error(), "yard.csv") {
 		t.Errorf("manifest %q: error %v does not wrap ErrCorpus or name yard.csv", m, err)
@@ -69,5 +71,50 @@ func TestManifestEmpty(t *testing.T) {
 	os.WriteFile(p, nil, 0o644)
 	if _, err := ReadManifest(p, ""); err == nil || !strings.Contains(err.Error(), p) || !strings.Contains(err.Error(), "empty manifest") {
 		t.Errorf("empty file: error %v", err)
+	}
+}
+
+// One clip listed twice, one clip with two labels, one file in two folds:
+// each is refused at the later line, naming the earlier one. Paths are
+// compared cleaned and resolved against the manifest's folder, so
+// "./saw1.wav", "sub/../saw1.wav" and "/yard/saw1.wav" are one file.
+func TestManifestDuplicatesAndConflicts(t *testing.T) {
+	for _, c := range []struct {
+		name, m string
+		line    int
+		want    []string // in the reason
+	}{
+		{"duplicate row", "path,label,fold\nsaw1.wav,saw,1\nchip1.wav,chipper,2\nsaw1.wav,saw,1\n", 4, []string{"duplicate", "line 2", "saw1.wav"}},
+		{"duplicate, path written differently", "path,label\nsaw1.wav,saw\nfork1.wav,forklift\n./saw1.wav,saw\n", 4, []string{"duplicate", "line 2", `"saw1.wav"`}},
+		{"duplicate span", "path,label,start,end\nlog.wav,saw,0,1\nlog.wav,saw,1,2\nlog.wav,saw,0,1\n", 4, []string{"duplicate", "line 2"}},
+		{"two labels", "path,label,fold\nsaw1.wav,saw,1\nchip1.wav,chipper,2\nsub/../saw1.wav,forklift,1\n", 4, []string{"line 2", `"saw"`, `"forklift"`}},
+		{"two labels, absolute path", "path,label\nsaw1.wav,saw\n/yard/./saw1.wav,chipper\n", 3, []string{"line 2", `"saw"`, `"chipper"`}},
+		{"whole file and a span of it", "path,label,start,end\nlog.wav,saw,,\nlog.wav,chipper,2,3\n", 3, []string{"line 2", `"saw"`, `"chipper"`}},
+		{"overlapping spans", "path,label,start,end\nlog.wav,chipper,2,3\nx.wav,saw,,\nlog.wav,saw,0,2.5\n", 4, []string{"line 2", `"saw"`, `"chipper"`, "overlap"}},
+		{"open-ended span", "path,label,start,end\nlog.wav,saw,5,\nlog.wav,chipper,7,9\n", 3, []string{"line 2"}},
+		{"two folds", "path,label,fold\nsaw1.wav,saw,1\nchip1.wav,chipper,2\n/yard/saw1.wav,saw,2\n", 4, []string{"line 2", `fold "1"`, `fold "2"`, "leakage"}},
+		{"spans in two folds, separate groups", "path,label,fold,start,end,group\nlog.wav,saw,1,0,1,a\nlog.wav,saw,2,1,2,b\nx.wav,chipper,1,,,c\n", 3, []string{"line 2", "leakage"}},
+	} {
+		me := manifestErr(t, c.m)
+		if me.Line != c.line {
+			t.Errorf("%s: %v, want line %d", c.name, me, c.line)
+		}
+		for _, w := range c.want {
+			if !strings.Contains(me.Reason, w) {
+				t.Errorf("%s: %v, want %s in the reason", c.name, me, w)
+			}
+		}
+	}
+	// Spans of one file that do not overlap may carry different labels
+	// (a long recording labelled in parts), and spans of one label may
+	// overlap.
+	for _, m := range []string{
+		"path,label,start,end\nlog.wav,saw,0,2\nlog.wav,chipper,2,3\nlog.wav,saw,3,\n",
+		"path,label,start,end\nlog.wav,saw,0,2\nlog.wav,saw,1,3\n",
+		"path,label,fold\nsaw1.wav,saw,1\nsaw2.wav,saw,1\nyard/saw1.wav,saw,2\n",
+	} {
+		if _, err := ParseManifest("yard.csv", []byte(m), "/yard", ""); err != nil {
+			t.Errorf("manifest %q: %v", m, err)
+		}
 	}
 }

@@ -118,3 +118,105 @@ func TestManifestDuplicatesAndConflicts(t *testing.T) {
 		}
 	}
 }
+
+// A manifest whose rows are all in one fold cannot give a validation fold
+// or cross-validation; CheckFoldCount says so, naming the fold.
+func TestCheckFoldCount(t *testing.T) {
+	one, err := ParseManifest("yard.csv", []byte("path,label,fold\nsaw1.wav,saw,3\nchip1.wav,chipper,3\n"), "/yard", "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, need := range []int{MinFoldsValidation, MinFoldsTraining} {
+		err := one.CheckFoldCount(need)
+		if !errors.Is(err, ErrTooFewFolds) || !errors.Is(err, ErrCorpus) {
+			t.Fatalf("need %d: error %v, want ErrTooFewFolds and ErrCorpus", need, err)
+		}
+		for _, w := range []string{"yard.csv", `one fold (label "3")`, "cross-validation and a validation fold need at least 2 folds", "3 for test + validation + training"} {
+			if !strings.Contains(err.Error(), w) {
+				t.Errorf("need %d: %v, want %q in it", need, err, w)
+			}
+		}
+	}
+	two, err := ParseManifest("yard.csv", []byte("path,label,fold\nsaw1.wav,saw,1\nchip1.wav,chipper,2\n"), "/yard", "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := two.CheckFoldCount(MinFoldsValidation); err != nil {
+		t.Errorf("2 folds, need 2: %v", err)
+	}
+	if err := two.CheckFoldCount(MinFoldsTraining); !errors.Is(err, ErrTooFewFolds) || !strings.Contains(err.Error(), "2 folds (labels 1, 2)") || !strings.Contains(err.Error(), "at least 3") {
+		t.Errorf("2 folds, need 3: %v", err)
+	}
+	none, err := ParseManifest("yard.csv", []byte("path,label\nsaw1.wav,saw\nchip1.wav,chipper\n"), "/yard", "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := none.CheckFoldCount(MinFoldsValidation); !errors.Is(err, ErrTooFewFolds) || !strings.Contains(err.Error(), "no folds") {
+		t.Errorf("no folds: %v", err)
+	}
+}
+
+// A class whose clips are all in the test and validation folds has no
+// training clip; CheckTrainingClasses names it, its folds and its lines.
+func TestCheckTrainingClasses(t *testing.T) {
+	m := `path,label,fold
+saw1.wav,saw,1
+saw2.wav,saw,2
+saw3.wav,saw,3
+saw4.wav,saw,4
+chip1.wav,chipper,1
+chip2.wav,chipper,2
+fork1.wav,forklift,2
+fork2.wav,forklift,4
+`
+	c, err := ParseManifest("yard.csv", []byte(m), "/yard", "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	fold := func(l string) int {
+		k, err := c.FoldIndex(l)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return k
+	}
+	for _, ok := range [][2]string{{"3", "4"}, {"1", "3"}, {"3", "2"}} {
+		if err := c.CheckTrainingClasses(fold(ok[0]), fold(ok[1])); err != nil {
+			t.Errorf("test fold %s, validation fold %s: %v", ok[0], ok[1], err)
+		}
+	}
+	err = c.CheckTrainingClasses(fold("1"), fold("2"))
+	if !errors.Is(err, ErrCorpus) {
+		t.Fatalf("test 1, validation 2: error %v, want ErrCorpus", err)
+	}
+	for _, w := range []string{"yard.csv", `test fold "1"`, `validation fold "2"`, `"chipper"`, "lines 6, 7"} {
+		if !strings.Contains(err.Error(), w) {
+			t.Errorf("%v: want %s in it", err, w)
+		}
+	}
+	if strings.Contains(err.Error(), "forklift") || strings.Contains(err.Error(), `"saw"`) {
+		t.Errorf("%v names a class that has training clips", err)
+	}
+	if err := c.CheckTrainingClasses(fold("2"), fold("4")); err == nil || !strings.Contains(err.Error(), `"forklift"`) || !strings.Contains(err.Error(), "lines 8, 9") {
+		t.Errorf("test 2, validation 4: %v, want forklift named", err)
+	}
+	if err := c.CheckTrainingClasses(0, c.Folds); !errors.Is(err, ErrCorpus) {
+		t.Errorf("validation fold index out of range: %v", err)
+	}
+	// With two folds, test and validation leave no training fold at all.
+	two, _ := ParseManifest("yard.csv", []byte("path,label,fold\nsaw1.wav,saw,1\nchip1.wav,chipper,2\n"), "/yard", "")
+	if err := two.CheckTrainingClasses(0, 1); !errors.Is(err, ErrTooFewFolds) || !strings.Contains(err.Error(), "no training fold") {
+		t.Errorf("2 folds: %v, want ErrTooFewFolds", err)
+	}
+	// A folder corpus has no lines: the files are named instead.
+	f := &Corpus{Source: "yard", Classes: []string{"chipper", "saw"}, HasFolds: true, Folds: 3, FoldLabels: []string{"0", "1", "2"}, Clips: []Clip{
+		{ID: 0, Path: "yard/chipper/c1.wav", Label: 0, Fold: 0}, {ID: 1, Path: "yard/saw/s1.wav", Label: 1, Fold: 1}, {ID: 2, Path: "yard/saw/s2.wav", Label: 1, Fold: 2}}}
+	if err := f.CheckTrainingClasses(0, 1); err == nil || !strings.Contains(err.Error(), "yard/chipper/c1.wav") {
+		t.Errorf("folder corpus: %v, want the chipper file named", err)
+	}
+	// A class with no clips at all (classes from a model, say) is named too.
+	f.Classes = append(f.Classes, "planer")
+	if err := f.CheckTrainingClasses(1, 0); err == nil || !strings.Contains(err.Error(), `"planer"`) || !strings.Contains(err.Error(), "no clips") {
+		t.Errorf("class without clips: %v", err)
+	}
+}

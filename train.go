@@ -231,9 +231,8 @@ func folds(c *datasets.Corpus, test, val string) (int, int, error) {
 		return 0, 0, fmt.Errorf("pipit: test fold: %w", err)
 	}
 	if val == "" {
-		if c.Folds < 3 {
-			return 0, 0, fmt.Errorf("pipit: %s has %d fold(s) (%s): training needs at least 3, one to test, one to validate and the rest to train on; give the manifest more folds, or leave its fold column out to have folds assigned (--folds)",
-				c.Source, c.Folds, strings.Join(c.FoldLabels, ", "))
+		if err := c.CheckFoldCount(datasets.MinFoldsTraining); err != nil {
+			return 0, 0, fmt.Errorf("pipit: %w", err)
 		}
 		return ti, (ti + 1) % c.Folds, nil
 	}
@@ -309,27 +308,6 @@ func checkOut(out string, replace, carryOn bool) (carry bool, err error) {
 		return false, fmt.Errorf("pipit: train: %s holds an interrupted run of %s; --carry-on continues it from its last finished epoch, or delete the folder to start over", work, out)
 	}
 	return true, nil
-}
-
-// checkTrainingClasses refuses a split that leaves a class without
-// training clips: the network could never learn it, and its test score
-// would say nothing.
-func checkTrainingClasses(c *datasets.Corpus, trainIDs []int, testIdx, valIdx int) error {
-	n := make([]int, len(c.Classes))
-	for _, id := range trainIDs {
-		n[c.Clips[id].Label]++
-	}
-	var missing []string
-	for k, v := range n {
-		if v == 0 {
-			missing = append(missing, c.Classes[k])
-		}
-	}
-	if len(missing) > 0 {
-		return fmt.Errorf("pipit: %s: class(es) %s have no clips in the training folds (all their clips are in test fold %s or validation fold %s): add clips of them to other folds",
-			c.Source, strings.Join(missing, ", "), c.FoldLabel(testIdx), c.FoldLabel(valIdx))
-	}
-	return nil
 }
 
 // availableMemory returns MemAvailable of /proc/meminfo in bytes.
@@ -448,8 +426,8 @@ func Train(c *datasets.Corpus, cfg TrainConfig, rep Reporter) (*TrainResult, err
 	}
 	win := datasets.WindowConfig{Frames: net.Input.W, Overlap: cfg.Overlap, Pad: pad}
 	trainIDs, valIDs, testIDs := c.Partition(testIdx, valIdx)
-	if err := checkTrainingClasses(c, trainIDs, testIdx, valIdx); err != nil {
-		return nil, err
+	if err := c.CheckTrainingClasses(testIdx, valIdx); err != nil {
+		return nil, fmt.Errorf("pipit: %w", err)
 	}
 	ld := newLoader(c, Data{CacheDir: cfg.CacheDir, SkipBad: cfg.SkipBad}, fe, win, rep)
 	trainSet, err := ld.load("train", trainIDs, !cfg.Recipe.NoAugment, nil)

@@ -355,7 +355,7 @@ func TestTrainRefusesClassWithoutTrainingClips(t *testing.T) {
 		one = append(one, strings.Join(g, ","))
 	}
 	dir := filepath.Dir(manifest)
-	for _, tc := range []struct{ name, want string }{{"moved.csv", "no clips in the training folds"}, {"one.csv", "training needs at least 3"}} {
+	for _, tc := range []struct{ name, want string }{{"moved.csv", "leave no training clip of class"}, {"one.csv", "3 for test + validation + training"}} {
 		rows := moved
 		if tc.name == "one.csv" {
 			rows = one

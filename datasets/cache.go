@@ -26,14 +26,15 @@ import (
 // settings misses.
 //
 // Entries are keyed by a SHA-256 of the file's bytes and the clip span,
-// inside a group keyed by the front-end [features.Config], the padding and
-// the window length: Dir/<group>/ holds pack files, each written once,
-// atomically, by one [Load] with the entries it computed. A Load reads the
-// packs of its group whole (a few sequential reads, not one file per
-// clip), so a warm load costs reading the WAV files, hashing them and
-// copying matrices. A damaged or truncated pack, or a damaged entry,
-// reads as a miss and is recomputed; when a group holds more than
-// [MaxCachePacks] packs, Load merges them into one.
+// inside a group keyed by the front-end [features.Config], the padding, the
+// window length and a version of [Load]'s rules for accepting clips:
+// Dir/<group>/ holds pack files, each written once, atomically, by one
+// [Load] with the entries it computed. A Load reads the packs of its group
+// whole (a few sequential reads, not one file per clip), so a warm load
+// costs reading the WAV files, hashing them and copying matrices. A damaged
+// or truncated pack, or a damaged entry, reads as a miss and is recomputed;
+// when a group holds more than [MaxCachePacks] packs, Load merges them into
+// one.
 //
 // Pack format (little-endian): magic "PIPITLP1"; uint32 entry count n;
 // uint32 0; n table rows of 52 bytes (key [32]byte, uint32 bands, uint32
@@ -75,13 +76,17 @@ func fileKey(fileBytes []byte, cl Clip) cacheKey {
 }
 
 // groupName names the group of a front end, a padding and a minimum clip
-// length in samples.
+// length in samples (the window's, to which shorter clips are padded).
+// Rule versions the loader's acceptance rules: since rule 1 a cache holds
+// only clips of at least MinClipSamples, so a hit needs no length check,
+// and older caches (which may hold padded short clips) miss.
 func groupName(pad string, minSamples int, fe features.Config) string {
 	meta, _ := json.Marshal(struct {
-		Pad string
-		Min int
-		FE  features.Config
-	}{pad, minSamples, fe})
+		Pad  string
+		Min  int
+		FE   features.Config
+		Rule int
+	}{pad, minSamples, fe, 1})
 	h := sha256.Sum256(meta)
 	return hex.EncodeToString(h[:10])
 }

@@ -46,12 +46,22 @@ const MaxFolds = 1000
 // columns path and label, and optionally fold, start, end and the column
 // named by groupColumn (empty: "group" if present). Paths are relative to
 // the manifest's folder unless absolute; extra columns are ignored; lines
-// starting with '#' are comments. Folds in the file are labels: integers
-// from any start (1..10 as many public corpora number them) or any
-// strings, at most [MaxFolds] of them; every row must then have one (see
-// [Corpus.FoldLabels]). A clip's group is the group column if given, else
-// its path, so spans cut from one file share a group. Every file must
-// exist; errors name the manifest and the physical line of the row
+// starting with '#' are comments, and blank lines (or lines of only spaces
+// and commas before the header) are skipped. The text is UTF-8; a byte-order
+// mark at its start is skipped, and UTF-16 text is refused.
+//
+// Folds in the file are labels: integers from any start (1..10 as many
+// public corpora number them) or any strings, at most [MaxFolds] of them;
+// every row must then have one (see [Corpus.FoldLabels]). A clip's group is
+// the group column if given, else its path, so spans cut from one file share
+// a group.
+//
+// Paths are compared cleaned and resolved against the manifest's folder
+// ("./a.wav" and "a.wav" are one file). A manifest is refused when it lists
+// one clip (file and span) twice, gives one file two labels on overlapping
+// spans (a row without a span covers the whole file), or puts one file in
+// two folds; the error is at the later line and names the earlier. Every
+// file must exist; errors name the manifest and the physical line of the row
 // (comments and blank lines counted).
 func ReadManifest(path, groupColumn string) (*Corpus, error) {
 	data, err := os.ReadFile(path)
@@ -75,16 +85,20 @@ func ReadManifest(path, groupColumn string) (*Corpus, error) {
 // numbers in errors are physical lines of data, counting comments, blank
 // lines and the lines of quoted fields that span several.
 func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus, error) {
-	// A UTF-8 byte-order mark, as some spreadsheet programs write, is not
-	// part of the first column's name.
-	data = bytes.TrimPrefix(data, []byte("\xef\xbb\xbf"))
+	data = bytes.TrimPrefix(data, []byte(utf8BOM))
+	if bytes.HasPrefix(data, []byte("\xff\xfe")) || bytes.HasPrefix(data, []byte("\xfe\xff")) {
+		return nil, &ManifestError{Name: name, Line: 1, Reason: "the file is UTF-16 text (it starts with a UTF-16 byte-order mark); save it as UTF-8"}
+	}
 	r := csv.NewReader(bytes.NewReader(data))
 	r.Comment = '#'
 	r.FieldsPerRecord = -1
 	r.TrimLeadingSpace = true
 	header, err := r.Read()
+	for err == nil && blankRecord(header) { // lines of spaces or bare commas before the header
+		header, err = r.Read()
+	}
 	if err == io.EOF {
-		return nil, &ManifestError{Name: name, Line: 1, Reason: "empty manifest"}
+		return nil, &ManifestError{Name: name, Line: 1, Reason: "empty manifest: no header row (the first row names the columns, at least path and label, then one row per clip)"}
 	}
 	if err != nil {
 		return nil, &ManifestError{Name: name, Line: csvLine(err, 1), Reason: err.Error()}
@@ -107,13 +121,7 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 		return nil, &ManifestError{Name: name, Line: headerLine, Reason: fmt.Sprintf("no group column %q", groupColumn)}
 	}
 	groupColumn = strings.ToLower(groupColumn)
-	type row struct {
-		line               int
-		path, label, group string
-		fold               string
-		start, end         float64
-	}
-	var rows []row
+	var rows []manifestRow
 	line := headerLine
 	for {
 		rec, err := r.Read()
@@ -130,7 +138,7 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 			}
 			return ""
 		}
-		rw := row{line: line, path: get("path"), label: get("label")}
+		rw := manifestRow{line: line, path: get("path"), label: get("label")}
 		if rw.path == "" || rw.label == "" {
 			return nil, &ManifestError{Name: name, Line: line, Reason: "empty path or label"}
 		}
@@ -151,10 +159,12 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 		if rw.end != 0 && rw.end <= rw.start {
 			return nil, &ManifestError{Name: name, Line: line, Reason: fmt.Sprintf("end %g s is not after start %g s", rw.end, rw.start)}
 		}
-		p := rw.path
+		rw.raw = rw.path
+		p := filepath.FromSlash(rw.path)
 		if !filepath.IsAbs(p) {
-			p = filepath.Join(base, filepath.FromSlash(p))
+			p = filepath.Join(base, p)
 		}
+		p = filepath.Clean(p)
 		rw.path = p
 		rw.group = p
 		if groupColumn != "" {
@@ -165,35 +175,7 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 		rows = append(rows, rw)
 	}
 	if len(rows) == 0 {
-		return nil, &ManifestError{Name: name, Line: line, Reason: "no clips"}
-	}
-	// One file (or span of a file) listed twice counts twice in training
-	// and can land in two folds; with two labels it is contradictory.
-	type spanKey struct {
-		path       string
-		start, end float64
-	}
-	seenAt := map[spanKey]int{}
-	for i, rw := range rows {
-		k := spanKey{filepath.Clean(rw.path), rw.start, rw.end}
-		j, dup := seenAt[k]
-		if !dup {
-			seenAt[k] = i
-			continue
-		}
-		first := rows[j]
-		what := "the same file and span as line " + strconv.Itoa(first.line)
-		if rw.start != 0 || rw.end != 0 {
-			what = fmt.Sprintf("the same file and span (%g–%g s) as line %d", rw.start, rw.end, first.line)
-		}
-		switch {
-		case first.label != rw.label:
-			return nil, &ManifestError{Name: name, Line: rw.line, Reason: fmt.Sprintf("%s with label %q, %s with label %q: one clip cannot have two labels", filepath.Base(rw.path), rw.label, what, first.label)}
-		case first.fold != rw.fold:
-			return nil, &ManifestError{Name: name, Line: rw.line, Reason: fmt.Sprintf("%s in fold %q, %s in fold %q: one clip in two folds leaks between training and test", filepath.Base(rw.path), rw.fold, what, first.fold)}
-		default:
-			return nil, &ManifestError{Name: name, Line: rw.line, Reason: fmt.Sprintf("%s repeats %s: remove the duplicate row", filepath.Base(rw.path), what)}
-		}
+		return nil, &ManifestError{Name: name, Line: headerLine, Reason: "no clips: the header is the only row (add one row per clip)"}
 	}
 	withFold := 0
 	foldSeen := map[string]bool{}
@@ -216,6 +198,9 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 				return nil, &ManifestError{Name: name, Line: rw.line, Reason: "no fold, while other rows have one"}
 			}
 		}
+	}
+	if err := checkRows(name, rows); err != nil {
+		return nil, err
 	}
 	sortFoldLabels(foldLabels)
 	foldIndex := map[string]int{}
@@ -247,6 +232,129 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 	return c, nil
 }
 
+// manifestRow is one clip row of a manifest as read.
+type manifestRow struct {
+	line               int
+	raw                string // path as written
+	path, label, group string // path cleaned and joined to the manifest's folder
+	fold               string
+	start, end         float64
+}
+
+// spanEnd returns the end of rw's span, +Inf for "to the end of the file".
+func (rw manifestRow) spanEnd() float64 {
+	if rw.end == 0 {
+		return math.Inf(1)
+	}
+	return rw.end
+}
+
+// what describes rw's clip for an error: its path as written, and its
+// span if it has one.
+func (rw manifestRow) what() string {
+	s := strconv.Quote(rw.raw)
+	switch {
+	case rw.end != 0:
+		s += fmt.Sprintf(" %g–%g s", rw.start, rw.end)
+	case rw.start != 0:
+		s += fmt.Sprintf(" from %g s", rw.start)
+	}
+	return s
+}
+
+// checkRows refuses rows that list one clip (the same cleaned path and
+// span) twice, give one file two labels on overlapping spans (a row
+// without a span covers the whole file), or put one file in two folds.
+// The error is at the later of the two lines and names the earlier.
+func checkRows(name string, rows []manifestRow) error {
+	type clipKey struct {
+		path       string
+		start, end float64
+	}
+	// conflict reports a problem kind ("label", "fold", "duplicate" or
+	// "overlap") between two rows at the later one, naming the earlier.
+	conflict := func(a, b manifestRow, kind string) error {
+		if a.line > b.line {
+			a, b = b, a
+		}
+		there := fmt.Sprintf("line %d", a.line)
+		if a.what() != b.what() {
+			there += " (" + a.what() + ")"
+		}
+		var reason string
+		switch kind {
+		case "duplicate":
+			reason = fmt.Sprintf("%s duplicates %s: the same clip, label %q%s; remove one row", b.what(), there, b.label, foldNote(b.fold))
+		case "label":
+			reason = fmt.Sprintf("%s is labelled %q here and %q on %s: a clip has one label", b.what(), b.label, a.label, there)
+		case "overlap":
+			reason = fmt.Sprintf("%s (label %q) overlaps %s, labelled %q: a stretch of sound has one label", b.what(), b.label, there, a.label)
+		default:
+			reason = fmt.Sprintf("%s is in fold %q here and in fold %q on %s: one recording in two folds is leakage between training and test", b.what(), b.fold, a.fold, there)
+		}
+		return &ManifestError{Name: name, Line: b.line, Reason: reason}
+	}
+	first := map[clipKey]int{}
+	fileFold := map[string]int{}
+	byFile := map[string][]int{}
+	var files []string
+	for i, rw := range rows {
+		k := clipKey{rw.path, rw.start, rw.end}
+		if j, ok := first[k]; ok {
+			p := rows[j]
+			switch {
+			case p.label != rw.label:
+				return conflict(p, rw, "label")
+			case p.fold != rw.fold:
+				return conflict(p, rw, "fold")
+			default:
+				return conflict(p, rw, "duplicate")
+			}
+		}
+		first[k] = i
+		if j, ok := fileFold[rw.path]; ok && rows[j].fold != rw.fold {
+			return conflict(rows[j], rw, "fold")
+		} else if !ok {
+			fileFold[rw.path] = i
+		}
+		if _, ok := byFile[rw.path]; !ok {
+			files = append(files, rw.path)
+		}
+		byFile[rw.path] = append(byFile[rw.path], i)
+	}
+	// Overlapping spans of one file with different labels: sweep the
+	// spans in start order against the one reaching furthest so far. If
+	// any two overlapping spans differ in label, the first span (in this
+	// order) overlapping an earlier one of another label also overlaps,
+	// and differs from, the furthest-reaching span before it.
+	for _, f := range files {
+		idx := byFile[f]
+		if len(idx) < 2 {
+			continue
+		}
+		sort.SliceStable(idx, func(a, b int) bool { return rows[idx[a]].start < rows[idx[b]].start })
+		reach := idx[0]
+		for _, i := range idx[1:] {
+			rw, m := rows[i], rows[reach]
+			if rw.start < m.spanEnd() && rw.label != m.label {
+				return conflict(m, rw, "overlap")
+			}
+			if rw.spanEnd() > m.spanEnd() {
+				reach = i
+			}
+		}
+	}
+	return nil
+}
+
+// foldNote returns ", fold "f"" or "" without a fold.
+func foldNote(fold string) string {
+	if fold == "" {
+		return ""
+	}
+	return fmt.Sprintf(", fold %q", fold)
+}
+
 // checkFolds verifies that every fold holds clips and no group spans two
 // folds.
 func (c *Corpus) checkFolds() error {
@@ -268,6 +376,20 @@ func (c *Corpus) checkFolds() error {
 		}
 	}
 	return nil
+}
+
+// utf8BOM is the UTF-8 byte-order mark some editors and spreadsheets
+// write at the start of a text file.
+const utf8BOM = "\ufeff"
+
+// blankRecord reports whether every field of rec is empty or spaces.
+func blankRecord(rec []string) bool {
+	for _, f := range rec {
+		if strings.TrimSpace(f) != "" {
+			return false
+		}
+	}
+	return true
 }
 
 // csvLine returns the physical line of a csv error, or def.

@@ -238,10 +238,10 @@ func TestManifestDuplicatesAndBOM(t *testing.T) {
 		name, body, want string
 		line             int
 	}{
-		{"duplicate", "path,label,fold\nsaw1.wav,saw,0\nfork1.wav,forklift,1\n./saw1.wav,saw,0\n", "repeats the same file and span as line 2", 4},
-		{"two labels", "path,label,fold\nsaw1.wav,saw,0\nfork1.wav,forklift,1\nsaw1.wav,chipper,0\n", "two labels", 4},
+		{"duplicate", "path,label,fold\nsaw1.wav,saw,0\nfork1.wav,forklift,1\n./saw1.wav,saw,0\n", "duplicates line 2", 4},
+		{"two labels", "path,label,fold\nsaw1.wav,saw,0\nfork1.wav,forklift,1\nsaw1.wav,chipper,0\n", "a clip has one label", 4},
 		{"two folds", "path,label,fold\nsaw1.wav,saw,0\nsaw1.wav,saw,1\n", "two folds", 3},
-		{"same span twice", "path,label,start,end\nday.wav,saw,0,1\nday.wav,forklift,1,2\nday.wav,chipper,0,1\n", "(0–1 s) as line 2", 4},
+		{"same span twice", "path,label,start,end\nday.wav,saw,0,1\nday.wav,forklift,1,2\nday.wav,chipper,0,1\n", "0–1 s is labelled \"chipper\" here and \"saw\" on line 2", 4},
 	}
 	for _, tc := range cases {
 		_, err := ParseManifest("yard.csv", []byte(tc.body), "/data", "")

@@ -27,3 +27,14 @@ func (e *ManifestError) Unwrap() error { return ErrCorpus }
 func corpusErr(format string, args ...any) error {
 	return fmt.Errorf("%w: "+format, append([]any{ErrCorpus}, args...)...)
 }
+
+// ErrTooFewFolds is wrapped, with [ErrCorpus], by the errors of
+// [Corpus.CheckFoldCount] and [Corpus.CheckTrainingClasses] when a corpus
+// has fewer folds than a use of it needs.
+var ErrTooFewFolds = errors.New("datasets: too few folds")
+
+// foldsError is an error wrapping both ErrCorpus and ErrTooFewFolds.
+type foldsError struct{ msg string }
+
+func (e *foldsError) Error() string   { return e.msg }
+func (e *foldsError) Unwrap() []error { return []error{ErrCorpus, ErrTooFewFolds} }

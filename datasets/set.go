@@ -17,9 +17,10 @@ type Options struct {
 	FrontEnd features.Config
 	Window   WindowConfig
 	Cache    *Cache // nil: no cache
-	// SkipBad skips clips whose file cannot be decoded, calling Warn with
-	// the error (which names the file); otherwise the first bad clip fails
-	// the load.
+	// SkipBad skips clips whose file cannot be decoded, or that are
+	// shorter than [MinClipSamples] (a [*ShortClipError]), calling Warn
+	// with the error (which names the file); otherwise the first bad clip
+	// fails the load.
 	SkipBad bool
 	Warn    func(error)
 	// KeepAudio keeps each clip's samples, which augmentation needs.
@@ -64,16 +65,9 @@ type Set struct {
 	bank    *noiseBank
 }
 
-// MinClipShare bounds padding: a clip shorter than 1/MinClipShare of the
-// model window is refused rather than padded (a 1-sample clip padded to a
-// second of silence is a labelled silence, not a sound of its class).
-// The bound is our choice (common practice is to drop such clips).
-const MinClipShare = 4
-
-const shareName = "quarter"
-
 // Load reads, resamples, pads and extracts the clips ids of c and cuts
-// them into windows. Each clip's log-mel matrix is taken from opts.Cache
+// them into windows. A clip shorter than [MinClipSamples] is a
+// [*ShortClipError] (skipped with a warning under opts.SkipBad). Each clip's log-mel matrix is taken from opts.Cache
 // when present there; the matrices computed are added to it as one pack.
 //
 // Clips are loaded by GOMAXPROCS workers; the result (windows, clip
@@ -101,7 +95,7 @@ func Load(c *Corpus, ids []int, opts Options) (*Set, error) {
 	done := make(chan struct{}, 64)
 	var wg sync.WaitGroup
 	for w := 0; w < min(runtime.GOMAXPROCS(0), len(ids)); w++ {
-		wl := &clipLoader{opts: &s.Opts, group: group, need: need, res: map[int]*features.Resampler{}}
+		wl := &clipLoader{opts: &s.Opts, source: c.Source, group: group, need: need, min: MinClipSamples(fe, opts.Window), res: map[int]*features.Resampler{}}
 		if w == 0 {
 			wl.ex = ex
 		} else if wl.ex, err = features.NewExtractor(fe); err != nil {
@@ -169,6 +163,68 @@ func Load(c *Corpus, ids []int, opts Options) (*Set, error) {
 	return s, nil
 }
 
+// MinClipSamples returns the fewest samples, at the front-end rate, that
+// [Load] accepts of a clip (of the part of its file that its span covers)
+// under front end fe and windows w: a quarter of one window
+// ([WindowConfig.Samples], rounded up), and never less than one front-end
+// frame (fe.WindowSamples). A shorter clip would be padded to a window of
+// mostly zeros or repeats (a 1-sample clip to a whole window of silence),
+// teaching its class nothing of its sound. With the default front end and
+// a 61-frame window that is 3,968 samples, 248 ms at 16 kHz.
+func MinClipSamples(fe features.Config, w WindowConfig) int {
+	return max(fe.WindowSamples, (w.Samples(fe)+3)/4)
+}
+
+// ShortClipError is the error [Load] gives for a clip shorter than
+// [MinClipSamples] (with [Options.SkipBad], the warning it passes to
+// Options.Warn before skipping the clip). It wraps [ErrCorpus].
+type ShortClipError struct {
+	Source     string  // the corpus's manifest or folder
+	Line       int     // the clip's manifest line; 0 for a folder corpus
+	Path       string  // the clip's file
+	Start, End float64 // the clip's span in seconds (End 0: to the end of the file)
+	Samples    int     // samples of the clip at RateHz
+	Min        int     // MinClipSamples
+	RateHz     int     // the front end's sample rate
+}
+
+// Error implements error: it names the manifest line, the file (and span),
+// the clip's length and the minimum.
+func (e *ShortClipError) Error() string {
+	where := "datasets: " + e.Source
+	if e.Line > 0 {
+		where += fmt.Sprintf(" line %d", e.Line)
+	}
+	what := e.Path
+	switch {
+	case e.End != 0:
+		what += fmt.Sprintf(" %g–%g s", e.Start, e.End)
+	case e.Start != 0:
+		what += fmt.Sprintf(" %g s to the end", e.Start)
+	}
+	samples := "samples"
+	if e.Samples == 1 {
+		samples = "sample"
+	}
+	return fmt.Sprintf("%s: %s: clip of %s (%d %s at %d Hz) is shorter than the %s (%d samples) a clip needs: a quarter of a model window and at least one front-end frame; padded to a window it would be mostly padding",
+		where, what, duration(e.Samples, e.RateHz), e.Samples, samples, e.RateHz, duration(e.Min, e.RateHz), e.Min)
+}
+
+// Unwrap makes errors.Is(err, ErrCorpus) true.
+func (e *ShortClipError) Unwrap() error { return ErrCorpus }
+
+// duration formats n samples at rate Hz as milliseconds below a second,
+// else seconds.
+func duration(n, rate int) string {
+	if rate <= 0 {
+		return "?"
+	}
+	if s := float64(n) / float64(rate); s >= 1 {
+		return fmt.Sprintf("%.3f s", s)
+	}
+	return fmt.Sprintf("%.1f ms", 1000*float64(n)/float64(rate))
+}
+
 // loadResult is what a worker made of one clip.
 type loadResult struct {
 	d   *clipData
@@ -179,11 +235,13 @@ type loadResult struct {
 
 // clipLoader is one worker's state: its own extractor and resamplers.
 type clipLoader struct {
-	opts  *Options
-	group *cacheGroup // read only while workers run
-	need  int
-	ex    *features.Extractor
-	res   map[int]*features.Resampler
+	opts   *Options
+	source string      // the corpus's manifest or folder, for errors
+	group  *cacheGroup // read only while workers run
+	need   int         // samples of one window
+	min    int         // MinClipSamples
+	ex     *features.Extractor
+	res    map[int]*features.Resampler
 }
 
 func (l *clipLoader) load(cl Clip) loadResult {
@@ -225,10 +283,8 @@ func (l *clipLoader) load(cl Clip) loadResult {
 	if lo >= hi {
 		return loadResult{err: corpusErr("%s: span %g..%g s is outside the %.3f s recording", cl.Path, cl.Start, cl.End, a.Seconds())}
 	}
-	if n := hi - lo; n < l.need/MinClipShare {
-		rate := float64(fe.SampleRateHz)
-		return loadResult{err: corpusErr("%s: clip of %.3f s (%d samples) is shorter than a %s of the %.3f s model window, too little sound to pad into a window; remove it from the manifest (or skip bad clips)",
-			cl.Path, float64(n)/rate, n, shareName, float64(l.need)/rate)}
+	if hi-lo < l.min {
+		return loadResult{err: &ShortClipError{Source: l.source, Line: cl.Line, Path: cl.Path, Start: cl.Start, End: cl.End, Samples: hi - lo, Min: l.min, RateHz: fe.SampleRateHz}}
 	}
 	x = padClip(x[lo:hi], l.need, l.opts.Window.Pad)
 	r.d = &clipData{}

@@ -308,7 +308,7 @@ func TestLoadRefusesTinyClip(t *testing.T) {
 		switch {
 		case tc.ok && err != nil:
 			t.Errorf("%s: %v", tc.file, err)
-		case !tc.ok && (err == nil || !strings.Contains(err.Error(), "shorter than a quarter") || !strings.Contains(err.Error(), tc.file)):
+		case !tc.ok && (err == nil || !strings.Contains(err.Error(), "a quarter of a model window") || !strings.Contains(err.Error(), tc.file)):
 			t.Errorf("%s: err %v, want a refusal naming the file and the quarter-window bound", tc.file, err)
 		}
 	}

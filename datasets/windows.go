@@ -21,7 +21,8 @@ const (
 // starting at frame k·HopFrames (at k·HopFrames·hop/rate seconds); frames
 // after the last whole window are not used. A clip shorter than one window
 // is first padded in the sample domain to [WindowConfig.Samples] samples,
-// with zeros or by repetition, and gives one window.
+// with zeros or by repetition, and gives one window; [Load] refuses clips
+// shorter than [MinClipSamples], a quarter of a window.
 type WindowConfig struct {
 	Frames  int     `json:"frames"`
 	Overlap float64 `json:"overlap"` // in [0, 1); 0, 0.25, 0.5, 0.75 are the usual

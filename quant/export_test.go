@@ -115,14 +115,20 @@ func TestImportRejectsDamage(t *testing.T) {
 	var d SchemeDoc
 	json.Unmarshal(js, &d)
 	d.Layers[2].Sections["weights"] = SectionRef{Offset: d.Layers[2].Sections["weights"].Offset + 4, Length: 1, Type: "int8"}
-	bad, _ := json.Marshal(&d)
-	if _, err := Import(blob, bad); !errors.Is(err, ErrFormat) {
+	bad, _ := d.MarshalScheme() // resealed: the section check refuses it, not the seal
+	if _, err := Import(blob, bad); !errors.Is(err, ErrFormat) || !strings.Contains(err.Error(), "section") {
 		t.Errorf("mismatched scheme: error %v", err)
 	}
 	json.Unmarshal(js, &d)
-	d.Blob.CRC32 = "00000000"
+	d.Layers[2].ClampHi = 100 // edited, not resealed
 	bad, _ = json.Marshal(&d)
-	if _, err := Import(blob, bad); !errors.Is(err, ErrFormat) {
+	if _, err := Import(blob, bad); !errors.Is(err, ErrFormat) || !strings.Contains(err.Error(), "seal") {
+		t.Errorf("edited scheme: error %v", err)
+	}
+	json.Unmarshal(js, &d)
+	d.Blob.SHA256 = strings.Repeat("0", 64)
+	bad, _ = d.MarshalScheme()
+	if _, err := Import(blob, bad); !errors.Is(err, ErrFormat) || !strings.Contains(err.Error(), "another export") {
 		t.Errorf("scheme for another blob: error %v", err)
 	}
 }

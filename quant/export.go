@@ -1,9 +1,7 @@
 package quant
 
 import (
-	"crypto/sha256"
 	"encoding/binary"
-	"encoding/hex"
 	"encoding/json"
 	"fmt"
 	"hash/crc32"
@@ -50,11 +48,13 @@ const (
 
 var sectionNames = map[uint32]string{sectionWeight: "weights", sectionBias: "bias", sectionMult: "multiplier", sectionShift: "shift"}
 
-// SchemeVersion is the version of the scheme description. Version 3
-// seals the description with a SHA-256 of its own content
-// (content_sha256); version 2 gave the weight granularity as a field of
-// its own (quantisation.weight_granularity); version 1 stated it only
-// inside the prose of quantisation.weights.
+// SchemeVersion is the version of the scheme description. Version 3 seals
+// the export: the scheme records the SHA-256 of its blob (blob.sha256),
+// the digest of its own canonical content (seal, see [SchemeDigest]) and
+// the generated C headers that record the same seal (c_headers). Version
+// 2 gives the weight granularity as a field of its own
+// (quantisation.weight_granularity); version 1 stated it only inside the
+// prose of quantisation.weights.
 const SchemeVersion = 3
 
 // SectionRef locates one blob section of a layer.
@@ -111,18 +111,21 @@ type SchemeDoc struct {
 	// FrontEnd describes the generated C front end (RAM, tables, flops),
 	// filled by the caller that generates it (opaque to quant).
 	FrontEnd json.RawMessage `json:"device_front_end,omitempty"`
-	// Seal is the SHA-256 (hex) of the description as MarshalScheme writes
-	// it with Seal empty. MarshalScheme sets it; Import recomputes it and
-	// refuses a description edited after export (a clamp, a scale, the
-	// class order: values the blob's CRC does not cover).
-	Seal string `json:"content_sha256"`
+	// Headers lists the generated C headers of the export, filled by the
+	// caller that writes them; each records Seal.
+	Headers []HeaderRef `json:"c_headers,omitempty"`
+	// Seal is the SHA-256 of the scheme's canonical content without the
+	// seal ([SchemeDigest]); the content includes the blob's SHA-256, so
+	// the seal identifies the whole export. Set by [SchemeDoc.Reseal].
+	Seal string `json:"seal"`
 }
 
 // BlobInfo identifies the blob a scheme belongs to.
 type BlobInfo struct {
 	Version int    `json:"version"`
 	Bytes   int    `json:"bytes"`
-	CRC32   string `json:"crc32"` // of the whole blob file, 8 hex digits
+	CRC32   string `json:"crc32"`  // of the whole blob file, 8 hex digits
+	SHA256  string `json:"sha256"` // of the whole blob file, 64 hex digits
 }
 
 // SchemeInfo states the quantisation scheme so a runtime never guesses.
@@ -165,7 +168,7 @@ type Totals struct {
 
 func shape3(s nn.Shape) [3]int { return [3]int{s.H, s.W, s.C} }
 
-// Export encodes m as a blob and its scheme description.
+// Export encodes m as a blob and its sealed scheme description.
 func Export(m *Model) (blob []byte, scheme *SchemeDoc, err error) {
 	if err := m.Validate(); err != nil {
 		return nil, nil, fmt.Errorf("quant: export: %w", err)
@@ -218,7 +221,7 @@ func Export(m *Model) (blob []byte, scheme *SchemeDoc, err error) {
 	le.PutUint32(blob[16:], crc32.ChecksumIEEE(blob[20:]))
 
 	doc := &SchemeDoc{Format: "pipit-scheme", Version: SchemeVersion, Model: m.Meta,
-		Blob: BlobInfo{Version: BlobVersion, Bytes: total, CRC32: fmt.Sprintf("%08x", crc32.ChecksumIEEE(blob))},
+		Blob: BlobInfo{Version: BlobVersion, Bytes: total, CRC32: fmt.Sprintf("%08x", crc32.ChecksumIEEE(blob)), SHA256: sha256Hex(blob)},
 		Scheme: SchemeInfo{Granularity: m.Scheme.Weights, Weights: m.Scheme.Weights + " symmetric int8, zero point 0, range [-127, 127]", Pow2Scales: m.Scheme.Pow2,
 			Activations:    "int8 affine per tensor: real = scale·(q − zero_point), q in [-128, 127]",
 			Bias:           "int32 per output channel at scale input_scale·weight_scale[c], zero point 0",
@@ -283,18 +286,20 @@ func Export(m *Model) (blob []byte, scheme *SchemeDoc, err error) {
 	last := &m.Layers[len(m.Layers)-1]
 	doc.Output = TensorInfo{Shape: shape3(last.OutShape), Q: last.Out, Buffer: len(m.Layers)}
 	doc.Totals = Totals{FlashBytes: total, WeightBytes: weights, OverheadBytes: total - weights, RAMBytes: pool, MACs: macs}
+	if err := doc.Reseal(); err != nil {
+		return nil, nil, err
+	}
 	return blob, doc, nil
 }
 
 func layerMACs(l *Layer) int64 { return macCount(l.Op, l.Geom, l.OutShape.C, len(l.Weights)) }
 
-// MarshalScheme returns the scheme as indented JSON.
+// MarshalScheme reseals d ([SchemeDoc.Reseal]) and returns it as indented
+// JSON.
 func (d *SchemeDoc) MarshalScheme() ([]byte, error) {
-	seal, err := d.contentSeal()
-	if err != nil {
+	if err := d.Reseal(); err != nil {
 		return nil, err
 	}
-	d.Seal = seal
 	b, err := json.MarshalIndent(d, "", "  ")
 	if err != nil {
 		return nil, fmt.Errorf("quant: %w", err)
@@ -302,27 +307,18 @@ func (d *SchemeDoc) MarshalScheme() ([]byte, error) {
 	return append(b, '\n'), nil
 }
 
-// contentSeal returns the SHA-256 of d's JSON with Seal empty.
-func (d *SchemeDoc) contentSeal() (string, error) {
-	c := *d
-	c.Seal = ""
-	b, err := json.MarshalIndent(&c, "", "  ")
-	if err != nil {
-		return "", fmt.Errorf("quant: %w", err)
-	}
-	h := sha256.Sum256(b)
-	return hex.EncodeToString(h[:]), nil
-}
-
 // CHeader returns a C99 header holding the blob as a const array and the
 // network's layer table, pool size, shapes and quantisation parameters as
 // macros, ready for runtime/c/pipit_rt.h. prefix names everything
-// (e.g. "yard" gives yard_blob, YARD_POOL_BYTES).
+// (e.g. "yard" gives yard_blob, YARD_POOL_BYTES). The header records
+// d.Seal as PREFIX_SEAL, so call it with a sealed d ([Export],
+// [SchemeDoc.Reseal]).
 func CHeader(blob []byte, d *SchemeDoc, prefix string) string {
 	up := strings.ToUpper(prefix)
 	var b strings.Builder
 	fmt.Fprintf(&b, "/* Generated by pipit export: do not edit. Blob version %d, %d bytes, CRC-32 %s. */\n", d.Blob.Version, d.Blob.Bytes, d.Blob.CRC32)
 	fmt.Fprintf(&b, "#ifndef %s_MODEL_H\n#define %s_MODEL_H\n\n#include \"pipit_rt.h\"\n\n", up, up)
+	fmt.Fprintf(&b, "/* The export's seal: the same in its scheme and in every header it generated. */\n#define %s_SEAL \"%s\"\n\n", up, d.Seal)
 	fmt.Fprintf(&b, "#if PIPIT_BLOB_VERSION != %d\n#error \"%s: blob version %d needs a pipit_rt.h of the same version\"\n#endif\n\n", d.Blob.Version, prefix, d.Blob.Version)
 	fmt.Fprintf(&b, "#define %s_POOL_BYTES %d\n#define %s_BLOB_BYTES %d\n#define %s_MACS %dL\n", up, d.Memory.PoolBytes, up, len(blob), up, d.Totals.MACs)
 	fmt.Fprintf(&b, "#define %s_INPUT_H %d\n#define %s_INPUT_W %d\n#define %s_INPUT_C %d\n", up, d.Input.Shape[0], up, d.Input.Shape[1], up, d.Input.Shape[2])

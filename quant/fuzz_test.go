@@ -1,7 +1,10 @@
 package quant
 
 import (
+	"bytes"
 	"encoding/json"
+	"fmt"
+	"hash/crc32"
 	"testing"
 
 	"github.com/pipit-audio/pipit/nn"
@@ -65,7 +68,8 @@ func FuzzModelJSON(f *testing.F) {
 }
 
 // FuzzImport: the blob + scheme loader never panics, and the engine runs
-// every model it accepts. Seeds: a real export and damaged copies.
+// every model it accepts. Seeds: a real (sealed) export, damaged copies,
+// a scheme of the previous version and one edited after export.
 func FuzzImport(f *testing.F) {
 	m := fuzzSeedModel(f)
 	blob, doc, err := Export(m)
@@ -76,11 +80,40 @@ func FuzzImport(f *testing.F) {
 	f.Add(blob, js)
 	f.Add(blob[:30], js)
 	f.Add(blob, []byte(`{"format":"pipit-scheme","version":1}`))
+	f.Add(blob, bytes.Replace(js, []byte(`"version": 3`), []byte(`"version": 2`), 1))
+	f.Add(blob, bytes.Replace(js, []byte(`"clamp_lo": -128`), []byte(`"clamp_lo": -100`), 1))
+	f.Add(blob, []byte(`{"format":"pipit-scheme","version":3,"seal":""}`))
 	f.Fuzz(func(t *testing.T, blob, scheme []byte) {
-		m, err := Import(blob, scheme)
-		if err != nil {
-			return
+		if m, err := Import(blob, scheme); err == nil {
+			m.RunAll(make([]int8, m.Input.Size()))
 		}
-		m.RunAll(make([]int8, m.Input.Size()))
+		// The fuzzer cannot forge a seal or a SHA-256: tie the scheme to the
+		// blob and reseal it, so the checks behind the seal are fuzzed too.
+		if m, err := Import(blob, fixUpScheme(blob, scheme)); err == nil {
+			m.RunAll(make([]int8, m.Input.Size()))
+		}
 	})
+}
+
+// fixUpScheme returns scheme with blob.bytes, blob.crc32 and blob.sha256
+// describing blob and the seal recomputed; scheme unchanged if it is not
+// a JSON object.
+func fixUpScheme(blob, scheme []byte) []byte {
+	var d map[string]any
+	if json.Unmarshal(scheme, &d) != nil || d == nil {
+		return scheme
+	}
+	d["blob"] = map[string]any{"version": BlobVersion, "bytes": len(blob), "crc32": fmt.Sprintf("%08x", crc32.ChecksumIEEE(blob)), "sha256": sha256Hex(blob)}
+	delete(d, "seal")
+	b, err := json.Marshal(d)
+	if err != nil {
+		return scheme
+	}
+	s, err := SchemeDigest(b)
+	if err != nil {
+		return scheme
+	}
+	d["seal"] = s
+	b, _ = json.Marshal(d)
+	return b
 }

@@ -13,32 +13,51 @@ import (
 )
 
 // ImportFiles reads an exported blob and scheme description back into a
-// Model the integer engine can run.
+// Model the integer engine can run. Besides what [Import] checks, every
+// generated C header the scheme lists (c_headers) that exists beside it
+// must belong to the same export: record the scheme's seal and, for the
+// network header, be byte for byte the header blob and scheme make. A
+// listed header that is missing is not an error (blob and scheme are
+// what a host needs). Errors name the file at fault.
 func ImportFiles(blobPath, schemePath string) (*Model, error) {
+	m, _, err := ImportSet(blobPath, schemePath)
+	return m, err
+}
+
+// ImportSet is [ImportFiles] returning the scheme description it read too.
+func ImportSet(blobPath, schemePath string) (*Model, *SchemeDoc, error) {
 	blob, err := os.ReadFile(blobPath)
 	if err != nil {
-		return nil, fmt.Errorf("quant: %w", err)
+		return nil, nil, fmt.Errorf("quant: %w", err)
 	}
 	scheme, err := os.ReadFile(schemePath)
 	if err != nil {
-		return nil, fmt.Errorf("quant: %w", err)
+		return nil, nil, fmt.Errorf("quant: %w", err)
 	}
-	return Import(blob, scheme)
+	m, d, err := importNamed(blobPath, schemePath, blob, scheme)
+	if err != nil {
+		return nil, nil, err
+	}
+	if err := checkHeaderFiles(schemePath, blob, d); err != nil {
+		return nil, nil, err
+	}
+	return m, d, nil
 }
 
 type blobSection struct{ kind, layer, off, length uint32 }
 
-// parseBlob checks the blob's header, CRC and section table.
-func parseBlob(b []byte) ([]blobSection, error) {
+// parseBlob checks the blob's header, CRC and section table; name names
+// it in errors.
+func parseBlob(name string, b []byte) ([]blobSection, error) {
 	bad := func(off int64, format string, args ...any) error {
-		return &FormatError{Name: "blob", Offset: off, Reason: fmt.Sprintf(format, args...)}
+		return &FormatError{Name: name, Offset: off, Reason: fmt.Sprintf(format, args...)}
 	}
 	le := binary.LittleEndian
 	if len(b) < blobHeader || string(b[:8]) != blobMagic {
 		return nil, bad(0, "not a pipit blob (%d bytes)", len(b))
 	}
 	if v := le.Uint32(b[8:]); v != BlobVersion {
-		return nil, &FormatError{Name: "blob", Offset: 8, Reason: fmt.Sprintf("version %d, this pipit reads %d", v, BlobVersion), Err: ErrUnsupportedVersion}
+		return nil, &FormatError{Name: name, Offset: 8, Reason: fmt.Sprintf("version %d, this pipit reads %d", v, BlobVersion), Err: ErrUnsupportedVersion}
 	}
 	if n := le.Uint32(b[12:]); int64(n) != int64(len(b)) {
 		return nil, bad(12, "header says %d bytes, file has %d (truncated or padded)", n, len(b))
@@ -63,15 +82,24 @@ func parseBlob(b []byte) ([]blobSection, error) {
 }
 
 // Import rebuilds a Model from blob and scheme bytes. A damaged blob (CRC,
-// truncation, version, a section out of range) or a scheme that does not
-// match it is an error wrapping [ErrFormat]. It never panics.
+// truncation, version, a section out of range), a scheme whose content
+// does not match its seal (edited after export), or a scheme that
+// describes another blob is an error wrapping [ErrFormat]. It never
+// panics.
 func Import(blob, scheme []byte) (*Model, error) {
-	secs, err := parseBlob(blob)
+	m, _, err := importNamed("blob", "scheme", blob, scheme)
+	return m, err
+}
+
+// importNamed is Import with the names the errors give the two files,
+// returning the scheme description too.
+func importNamed(blobName, schemeName string, blob, scheme []byte) (*Model, *SchemeDoc, error) {
+	secs, err := parseBlob(blobName, blob)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	bad := func(format string, args ...any) error {
-		return &FormatError{Name: "scheme", Reason: fmt.Sprintf(format, args...)}
+		return &FormatError{Name: schemeName, Reason: fmt.Sprintf(format, args...)}
 	}
 	var d SchemeDoc
 	if err := json.Unmarshal(scheme, &d); err != nil {
@@ -80,27 +108,36 @@ func Import(blob, scheme []byte) (*Model, error) {
 		if errors.As(err, &se) {
 			e.Offset = se.Offset
 		}
-		return nil, e
+		return nil, nil, e
 	}
 	if d.Format != "pipit-scheme" {
-		return nil, bad("format %q, want pipit-scheme", d.Format)
+		return nil, nil, bad("format %q, want pipit-scheme", d.Format)
 	}
 	if d.Version != SchemeVersion {
-		return nil, &FormatError{Name: "scheme", Reason: fmt.Sprintf("version %d, this pipit reads %d", d.Version, SchemeVersion), Err: ErrUnsupportedVersion}
+		why := "written by a newer pipit"
+		if d.Version < SchemeVersion {
+			why = "schemes before version 3 carry no seal; export the model again"
+		}
+		return nil, nil, &FormatError{Name: schemeName, Reason: fmt.Sprintf("version %d, this pipit reads %d: %s", d.Version, SchemeVersion, why), Err: ErrUnsupportedVersion}
 	}
-	if seal, err := d.contentSeal(); err != nil {
-		return nil, err
-	} else if d.Seal != seal {
-		return nil, bad("content_sha256 %q does not match the content (%s): the description was edited after export; export the model again", d.Seal, seal)
+	digest, err := SchemeDigest(scheme)
+	if err != nil {
+		return nil, nil, bad("%v", err)
 	}
-	if d.Blob.Bytes != len(blob) || d.Blob.CRC32 != fmt.Sprintf("%08x", crc32.ChecksumIEEE(blob)) {
-		return nil, bad("describes a blob of %d bytes with CRC %s, not this one (%d bytes, %08x)", d.Blob.Bytes, d.Blob.CRC32, len(blob), crc32.ChecksumIEEE(blob))
+	switch {
+	case d.Seal == "":
+		return nil, nil, bad("has no seal; export the model again")
+	case d.Seal != digest:
+		return nil, nil, bad("edited after export: its content does not match its seal (seal %s, content %s); export the model again instead of editing the scheme", short(d.Seal), short(digest))
+	}
+	if sum := sha256Hex(blob); d.Blob.Bytes != len(blob) || d.Blob.SHA256 != sum || d.Blob.CRC32 != fmt.Sprintf("%08x", crc32.ChecksumIEEE(blob)) {
+		return nil, nil, bad("describes a blob of %d bytes with SHA-256 %s, not %s (%d bytes, SHA-256 %s): the files come from another export", d.Blob.Bytes, short(d.Blob.SHA256), blobName, len(blob), short(sum))
 	}
 	if g := d.Scheme.Granularity; g != PerChannel && g != PerTensor {
-		return nil, bad("weight granularity %q, want %s or %s", g, PerChannel, PerTensor)
+		return nil, nil, bad("weight granularity %q, want %s or %s", g, PerChannel, PerTensor)
 	}
 	if len(d.Layers) == 0 || len(d.Layers) > 4096 {
-		return nil, bad("%d layers", len(d.Layers))
+		return nil, nil, bad("%d layers", len(d.Layers))
 	}
 	table := map[[2]uint32]blobSection{}
 	for _, s := range secs {
@@ -114,7 +151,7 @@ func Import(blob, scheme []byte) (*Model, error) {
 		l := Layer{Op: sl.Op, InShape: toShape(sl.InShape), OutShape: toShape(sl.OutShape), Act: sl.Activation, In: sl.Input, Out: sl.Output,
 			ClampLo: sl.ClampLo, ClampHi: sl.ClampHi, WeightScale: sl.WeightScl, NetIndex: -1}
 		if sl.Index != i || sl.InBuffer != i || sl.OutBuffer != i+1 {
-			return nil, bad("layer %d: index or buffers out of order", i)
+			return nil, nil, bad("layer %d: index or buffers out of order", i)
 		}
 		if l.Op != OpDense && l.Op != OpGlobalAvgPool {
 			l.Geom = kernels.ConvGeom{H: sl.InShape[0], W: sl.InShape[1], C: sl.InShape[2], KH: sl.Kernel[0], KW: sl.Kernel[1],
@@ -131,7 +168,7 @@ func Import(blob, scheme []byte) (*Model, error) {
 			}
 			w, err := get(sectionWeight)
 			if err != nil {
-				return nil, err
+				return nil, nil, err
 			}
 			l.Weights = make([]int8, len(w))
 			for k, v := range w {
@@ -143,10 +180,10 @@ func Import(blob, scheme []byte) (*Model, error) {
 			}{{sectionBias, &l.Bias}, {sectionMult, &l.Mult}, {sectionShift, &l.Shift}} {
 				raw, err := get(p.kind)
 				if err != nil {
-					return nil, err
+					return nil, nil, err
 				}
 				if len(raw)%4 != 0 {
-					return nil, bad("layer %d: %s section of %d bytes", i, sectionNames[p.kind], len(raw))
+					return nil, nil, bad("layer %d: %s section of %d bytes", i, sectionNames[p.kind], len(raw))
 				}
 				*p.dst = make([]int32, len(raw)/4)
 				for k := range *p.dst {
@@ -157,7 +194,7 @@ func Import(blob, scheme []byte) (*Model, error) {
 		m.Layers = append(m.Layers, l)
 	}
 	if err := m.Validate(); err != nil {
-		return nil, bad("%v", err)
+		return nil, nil, bad("%v", err)
 	}
-	return m, nil
+	return m, &d, nil
 }

@@ -2,14 +2,16 @@ package datasets
 
 import (
 	"bytes"
+	"math"
 	"path/filepath"
 	"testing"
 )
 
 // FuzzParseManifest: the manifest parser never panics; accepted manifests
 // have classes, clips with labels in range, and consistent folds, list no
-// clip (cleaned path and span) twice and no file in two folds; a UTF-8
-// byte-order mark in front changes nothing. Seeds beyond these are in
+// clip (cleaned path and span) twice, no file in two folds and no
+// overlapping spans of one file with two labels; a UTF-8 byte-order mark
+// in front changes nothing. Seeds beyond these are in
 // testdata/fuzz/FuzzParseManifest (a BOM, duplicates, two labels, two
 // folds, overlapping spans).
 func FuzzParseManifest(f *testing.F) {
@@ -48,6 +50,19 @@ func FuzzParseManifest(f *testing.F) {
 				t.Fatalf("file %s in folds %d and %d", cl.Path, f, cl.Fold)
 			}
 			fileFold[cl.Path] = cl.Fold
+		}
+		end := func(cl Clip) float64 {
+			if cl.End == 0 {
+				return math.Inf(1)
+			}
+			return cl.End
+		}
+		for i, a := range c.Clips {
+			for _, b := range c.Clips[i+1:] {
+				if a.Path == b.Path && a.Label != b.Label && a.Start < end(b) && b.Start < end(a) {
+					t.Fatalf("overlapping spans of %s with labels %d and %d: %+v, %+v", a.Path, a.Label, b.Label, a, b)
+				}
+			}
 		}
 		if bytes.HasPrefix(data, []byte(utf8BOM)) {
 			return

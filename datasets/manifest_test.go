@@ -108,6 +108,16 @@ func TestManifestDuplicatesAndConflicts(t *testing.T) {
 			}
 		}
 	}
+	// A relative manifest folder: an absolute path to the same file is
+	// recognised.
+	wd, err := os.Getwd()
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := "path,label\nsaw1.wav,saw\n" + filepath.ToSlash(filepath.Join(wd, "yard", "saw1.wav")) + ",saw\n"
+	if _, err := ParseManifest("yard.csv", []byte(m), "yard", ""); err == nil || !strings.Contains(err.Error(), "duplicates line 2") {
+		t.Errorf("relative folder, absolute path: error %v, want a duplicate of line 2", err)
+	}
 	// Spans of one file that do not overlap may carry different labels
 	// (a long recording labelled in parts), and spans of one label may
 	// overlap.

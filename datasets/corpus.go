@@ -81,7 +81,8 @@ func ReadManifest(path, groupColumn string) (*Corpus, error) {
 }
 
 // ParseManifest parses manifest bytes (see [ReadManifest]) without touching
-// the file system; base is the folder relative paths are joined to. Line
+// the file system (beyond asking for the working folder, to compare relative
+// and absolute paths); base is the folder relative paths are joined to. Line
 // numbers in errors are physical lines of data, counting comments, blank
 // lines and the lines of quoted fields that span several.
 func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus, error) {

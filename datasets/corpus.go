@@ -81,7 +81,8 @@ func ReadManifest(path, groupColumn string) (*Corpus, error) {
 }
 
 // ParseManifest parses manifest bytes (see [ReadManifest]) without touching
-// the file system; base is the folder relative paths are joined to. Line
+// the file system (beyond asking for the working folder, to compare relative
+// and absolute paths); base is the folder relative paths are joined to. Line
 // numbers in errors are physical lines of data, counting comments, blank
 // lines and the lines of quoted fields that span several.
 func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus, error) {
@@ -122,6 +123,7 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 	}
 	groupColumn = strings.ToLower(groupColumn)
 	var rows []manifestRow
+	cwd, _ := os.Getwd() // to compare relative and absolute paths; "" if unknown
 	line := headerLine
 	for {
 		rec, err := r.Read()
@@ -166,6 +168,10 @@ func ParseManifest(name string, data []byte, base, groupColumn string) (*Corpus,
 		}
 		p = filepath.Clean(p)
 		rw.path = p
+		rw.file = p
+		if !filepath.IsAbs(p) && cwd != "" {
+			rw.file = filepath.Join(cwd, p)
+		}
 		rw.group = p
 		if groupColumn != "" {
 			if g := get(groupColumn); g != "" {
@@ -237,6 +243,7 @@ type manifestRow struct {
 	line               int
 	raw                string // path as written
 	path, label, group string // path cleaned and joined to the manifest's folder
+	file               string // path made absolute when the working folder is known, to compare files
 	fold               string
 	start, end         float64
 }
@@ -299,7 +306,7 @@ func checkRows(name string, rows []manifestRow) error {
 	byFile := map[string][]int{}
 	var files []string
 	for i, rw := range rows {
-		k := clipKey{rw.path, rw.start, rw.end}
+		k := clipKey{rw.file, rw.start, rw.end}
 		if j, ok := first[k]; ok {
 			p := rows[j]
 			switch {
@@ -312,15 +319,15 @@ func checkRows(name string, rows []manifestRow) error {
 			}
 		}
 		first[k] = i
-		if j, ok := fileFold[rw.path]; ok && rows[j].fold != rw.fold {
+		if j, ok := fileFold[rw.file]; ok && rows[j].fold != rw.fold {
 			return conflict(rows[j], rw, "fold")
 		} else if !ok {
-			fileFold[rw.path] = i
+			fileFold[rw.file] = i
 		}
-		if _, ok := byFile[rw.path]; !ok {
-			files = append(files, rw.path)
+		if _, ok := byFile[rw.file]; !ok {
+			files = append(files, rw.file)
 		}
-		byFile[rw.path] = append(byFile[rw.path], i)
+		byFile[rw.file] = append(byFile[rw.file], i)
 	}
 	// Overlapping spans of one file with different labels: sweep the
 	// spans in start order against the one reaching furthest so far. If

@@ -2,6 +2,9 @@ package datasets
 
 import (
 	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"strings"
@@ -104,6 +107,16 @@ func TestManifestDuplicatesAndConflicts(t *testing.T) {
 				t.Errorf("%s: %v, want %s in the reason", c.name, me, w)
 			}
 		}
+	}
+	// A relative manifest folder: an absolute path to the same file is
+	// recognised.
+	wd, err := os.Getwd()
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := "path,label\nsaw1.wav,saw\n" + filepath.ToSlash(filepath.Join(wd, "yard", "saw1.wav")) + ",saw\n"
+	if _, err := ParseManifest("yard.csv", []byte(m), "yard", ""); err == nil || !strings.Contains(err.Error(), "duplicates line 2") {
+		t.Errorf("relative folder, absolute path: error %v, want a duplicate of line 2", err)
 	}
 	// Spans of one file that do not overlap may carry different labels
 	// (a long recording labelled in parts), and spans of one label may
@@ -218,5 +231,59 @@ fork2.wav,forklift,4
 	f.Classes = append(f.Classes, "planer")
 	if err := f.CheckTrainingClasses(1, 0); err == nil || !strings.Contains(err.Error(), `"planer"`) || !strings.Contains(err.Error(), "no clips") {
 		t.Errorf("class without clips: %v", err)
+	}
+}
+
+// The overlap check sweeps spans in start order; on random manifests of
+// spans over two files it accepts exactly those a comparison of every
+// pair accepts (no clip twice, no overlapping spans with two labels).
+func TestManifestOverlapSweep(t *testing.T) {
+	rng := rand.New(rand.NewPCG(1, 2))
+	labels := []string{"saw", "chipper", "forklift"}
+	refused := 0
+	for trial := 0; trial < 3000; trial++ {
+		type row struct {
+			file, label string
+			start, end  float64 // end 0: to the end of the file
+		}
+		rows := make([]row, 2+rng.IntN(6))
+		var b strings.Builder
+		b.WriteString("path,label,start,end\n")
+		for i := range rows {
+			r := row{file: []string{"log1.wav", "log2.wav"}[rng.IntN(2)], label: labels[rng.IntN(len(labels))], start: float64(rng.IntN(6))}
+			if rng.IntN(4) > 0 {
+				r.end = r.start + float64(1+rng.IntN(3))
+			} else if rng.IntN(2) == 0 {
+				r.start = 0
+			}
+			rows[i] = r
+			fmt.Fprintf(&b, "%s,%s,%g,%g\n", r.file, r.label, r.start, r.end)
+		}
+		end := func(r row) float64 {
+			if r.end == 0 {
+				return math.Inf(1)
+			}
+			return r.end
+		}
+		want := true
+		for i, a := range rows {
+			for _, c := range rows[i+1:] {
+				same := a.file == c.file && a.start == c.start && a.end == c.end
+				overlap := a.file == c.file && a.start < end(c) && c.start < end(a)
+				if same || (overlap && a.label != c.label) {
+					want = false
+				}
+			}
+		}
+		_, err := ParseManifest("yard.csv", []byte(b.String()), "/yard", "")
+		if (err == nil) != want {
+			t.Fatalf("manifest\n%s: error %v, want accepted %v", b.String(), err, want)
+		}
+		if err != nil {
+			refused++
+		}
+	}
+	if refused < 300 || refused > 2700 {
+		t.Errorf("%d of 3000 random manifests refused: the test does not exercise both outcomes", refused)
 	}
 }

@@ -619,8 +619,8 @@ func CrossValidate(c *datasets.Corpus, cfg TrainConfig, rep Reporter) (*CrossVal
 	if err := cfg.Recipe.check(); err != nil {
 		return nil, err
 	}
-	if c.Folds < 2 {
-		return nil, fmt.Errorf("pipit: %s has %d fold: cross-validation needs at least 2 (3 to keep a validation fold apart from training)", c.Source, c.Folds)
+	if err := c.CheckFoldCount(datasets.MinFoldsTraining); err != nil {
+		return nil, fmt.Errorf("pipit: %w", err)
 	}
 	out, teacher := cfg.Out, cfg.Recipe.Teacher
 	if out == "" {

@@ -69,7 +69,7 @@ ending bit-identical to a run never interrupted.`,
 	f.Uint64Var(&r.Seed, "seed", r.Seed, "random seed (weights, shuffling, augmentation, assigned folds)")
 	f.Float64Var(&cfg.Overlap, "overlap", 0.5, "overlap of consecutive model windows within a clip")
 	f.StringVar(&cfg.Pad, "pad", datasets.PadZeros, "padding of clips shorter than a window: zeros or repeat")
-	f.BoolVar(&cfg.SkipBad, "skip-bad", false, "skip unreadable WAV files (reported by name) instead of failing")
+	f.BoolVar(&cfg.SkipBad, "skip-bad", false, "skip unreadable WAV files and clips too short for a window (reported by name) instead of failing")
 	f.BoolVar(&r.NoAugment, "no-augment", false, "train without augmentation")
 	f.StringVar(&cfg.CacheDir, "cache", defaultCacheDir(), "feature cache directory (empty: no cache)")
 	addRecipeFlags(cmd, r)

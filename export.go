@@ -41,6 +41,8 @@ type ExportResult struct {
 	RAMBytes      int      `json:"ram_bytes"`
 	MACs          int64    `json:"macs"`
 	CRC32         string   `json:"crc32"`
+	Seal          string   `json:"seal"`
+	Recovered     []string `json:"recovered,omitempty"`
 }
 
 // Export writes q into dir (created if needed): the blob, the scheme

@@ -20,7 +20,7 @@
 //     every accumulator against int32 and compares float and int8 on the
 //     test fold;
 //   - [Export] writes blob, scheme description, C header, C runtime and C
-//     front end, and reads them back;
+//     front end as one directory, sealed and read back ([OpenExport]);
 //   - [VerifyRoundTrip], [VerifyC], [VerifyCFrontEnd] and [Onchip] check the
 //     export against the Go engine: read back, compiled C, C front end, an
 //     emulated Cortex-M4;

@@ -1,12 +1,12 @@
 package pipit
 
 import (
+	"bytes"
 	"encoding/json"
-	"errors"
 	"fmt"
-	"io/fs"
 	"os"
 	"path/filepath"
+	"sort"
 	"strings"
 
 	"github.com/pipit-audio/pipit/datasets"
@@ -44,144 +44,239 @@ type ExportResult struct {
 	RAMBytes      int      `json:"ram_bytes"`
 	MACs          int64    `json:"macs"`
 	CRC32         string   `json:"crc32"`
+	Seal          string   `json:"seal"`                // the export's seal (quant.SchemeDoc.Seal)
+	Recovered     []string `json:"recovered,omitempty"` // what was cleaned up after killed runs
 }
 
-// Export writes q into dir: the blob, the scheme description, the C
-// header of the network, the C reference runtime and, when q records a
-// front end the C front end supports, the C front end with its generated
-// tables. The set is written as a whole: into a fresh folder beside dir,
-// read back from disk and imported there (so a result without error is an
-// export the integer engine can run), then swapped into place in one step
-// (an exchange of the two folders where the system has one). Whatever happens to the call, dir holds either the
-// previous export complete or the new one complete, never a mix. An
-// existing dir that is not an export of ours is refused; leftovers of
-// earlier interrupted exports beside dir are cleaned up first.
-func Export(q *quant.Model, dir string) (*ExportResult, error) {
+// Runtime files: the same in every export, from quant/cref.
+var runtimeFiles = []struct {
+	name string
+	data []byte
+}{{"pipit_rt.h", cref.RuntimeHeader}, {"pipit_rt.c", cref.RuntimeSource}, {"pipit_rt_fast.h", cref.FastRuntimeHeader}, {"pipit_rt_fast.c", cref.FastRuntimeSource}}
+
+// frontEndFiles are the C front end's fixed files.
+var frontEndFiles = []struct {
+	name string
+	data []byte
+}{{"pipit_fe.h", cref.FrontEndHeader}, {"pipit_fe.c", cref.FrontEndSource}}
+
+// exportSet is every file of q's export by name, with the report's
+// figures (paths relative to the export directory).
+func exportSet(q *quant.Model) (map[string][]byte, *ExportResult, *quant.SchemeDoc, error) {
 	blob, doc, err := quant.Export(q)
 	if err != nil {
-		return nil, err
+		return nil, nil, nil, err
 	}
-	dir = filepath.Clean(dir)
-	if err := prepareExportDir(dir); err != nil {
-		return nil, err
-	}
-	r := &ExportResult{Dir: dir, Blob: filepath.Join(dir, BlobFile), Scheme: filepath.Join(dir, SchemeFile), Header: filepath.Join(dir, CPrefix+".h"),
-		Runtime:    []string{filepath.Join(dir, "pipit_rt.h"), filepath.Join(dir, "pipit_rt.c"), filepath.Join(dir, "pipit_rt_fast.h"), filepath.Join(dir, "pipit_rt_fast.c")},
+	r := &ExportResult{Blob: BlobFile, Scheme: SchemeFile, Header: CPrefix + ".h",
 		FlashBytes: doc.Totals.FlashBytes, WeightBytes: doc.Totals.WeightBytes, OverheadBytes: doc.Totals.OverheadBytes,
 		RAMBytes: doc.Totals.RAMBytes, MACs: doc.Totals.MACs, CRC32: doc.Blob.CRC32}
-	files := map[string][]byte{r.Blob: blob, r.Header: []byte(quant.CHeader(blob, doc, CPrefix)),
-		r.Runtime[0]: cref.RuntimeHeader, r.Runtime[1]: cref.RuntimeSource, r.Runtime[2]: cref.FastRuntimeHeader, r.Runtime[3]: cref.FastRuntimeSource}
+	files := map[string][]byte{BlobFile: blob}
+	for _, f := range runtimeFiles {
+		r.Runtime = append(r.Runtime, f.name)
+		files[f.name] = f.data
+	}
+	doc.Headers = []quant.HeaderRef{{File: r.Header, Prefix: CPrefix, Kind: quant.HeaderNetwork}}
 	fe, note, err := DeviceFrontEnd(q)
 	if err != nil {
-		return nil, err
+		return nil, nil, nil, err
 	}
 	if note != "" {
 		r.FrontEndNote = note
 	} else {
-		hdr, lay, err := cref.FrontEndCHeader(fe, CPrefix)
+		_, lay, err := cref.FrontEndCHeader(fe, CPrefix)
 		if err != nil {
-			return nil, err
+			return nil, nil, nil, err
 		}
 		if doc.FrontEnd, err = json.Marshal(lay); err != nil {
-			return nil, fmt.Errorf("pipit: %w", err)
+			return nil, nil, nil, fmt.Errorf("pipit: %w", err)
 		}
-		r.FrontEnd = []string{filepath.Join(dir, lay.Header), filepath.Join(dir, "pipit_fe.h"), filepath.Join(dir, "pipit_fe.c")}
+		doc.Headers = append(doc.Headers, quant.HeaderRef{File: lay.Header, Prefix: CPrefix, Kind: quant.HeaderFrontEnd})
+		r.FrontEnd = []string{lay.Header}
+		for _, f := range frontEndFiles {
+			r.FrontEnd = append(r.FrontEnd, f.name)
+			files[f.name] = f.data
+		}
 		r.FrontEndRAM, r.FrontEndFlash = lay.Cost.RAMBytes, lay.Cost.TableBytes
-		files[r.FrontEnd[0]], files[r.FrontEnd[1]], files[r.FrontEnd[2]] = []byte(hdr), cref.FrontEndHeader, cref.FrontEndSource
 	}
-	scheme, err := doc.MarshalScheme()
+	scheme, err := doc.MarshalScheme() // seals the scheme: the headers record the seal
 	if err != nil {
-		return nil, err
+		return nil, nil, nil, err
 	}
-	files[r.Scheme] = scheme
-	tmp, err := os.MkdirTemp(filepath.Dir(dir), "."+filepath.Base(dir)+exportNew)
-	if err != nil {
-		return nil, fmt.Errorf("pipit: export: %w", err)
-	}
-	defer os.RemoveAll(tmp) // after the swap: the previous export, or nothing
-	if err := os.Chmod(tmp, 0o755); err != nil {
-		return nil, fmt.Errorf("pipit: export: %w", err)
-	}
-	for path, data := range files {
-		if err := fsutil.WriteFile(filepath.Join(tmp, filepath.Base(path)), data); err != nil {
-			return nil, fmt.Errorf("pipit: %w", err)
+	files[SchemeFile] = scheme
+	files[r.Header] = []byte(quant.CHeader(blob, doc, CPrefix))
+	if note == "" {
+		fe.Seal = doc.Seal
+		hdr, _, err := cref.FrontEndCHeader(fe, CPrefix)
+		if err != nil {
+			return nil, nil, nil, err
 		}
+		files[r.FrontEnd[0]] = []byte(hdr)
 	}
-	// Read back what was written: the files, not the memory, are the export.
-	if _, err := quant.ImportFiles(filepath.Join(tmp, BlobFile), filepath.Join(tmp, SchemeFile)); err != nil {
-		return nil, fmt.Errorf("pipit: export check: %w", err)
+	r.Seal = doc.Seal
+	return files, r, doc, nil
+}
+
+// withDir makes r's file names paths under dir.
+func (r *ExportResult) withDir(dir string) {
+	r.Dir = dir
+	j := func(p *string) { *p = filepath.Join(dir, *p) }
+	j(&r.Blob)
+	j(&r.Scheme)
+	j(&r.Header)
+	for i := range r.Runtime {
+		j(&r.Runtime[i])
 	}
-	if err := fsutil.SyncDir(tmp); err != nil {
+	for i := range r.FrontEnd {
+		j(&r.FrontEnd[i])
+	}
+}
+
+// Export writes q's export into dir: the blob, the scheme description,
+// the C header of the network, the C reference runtime and, when q
+// records a front end the C front end supports, the C front end with its
+// generated tables. The set is written as a whole: into a new sibling
+// directory .NAME.tmp-N, read back with [OpenExport], then put in dir's
+// place by rename (internal/fsutil.ReplaceDir), so dir always holds one
+// complete export, the earlier or the new one, even if the process is
+// killed. An existing dir must be an export (hold only files an export
+// writes); anything else is refused. What killed runs left beside dir is
+// cleaned first ([RecoverExport]) and reported in Recovered. A result
+// without error is an export the integer engine can run.
+func Export(q *quant.Model, dir string) (*ExportResult, error) {
+	files, r, _, err := exportSet(q)
+	if err != nil {
 		return nil, err
 	}
-	if err := swapInto(tmp, dir); err != nil {
+	notes, err := fsutil.ReplaceDir(dir, fsutil.ReplaceOptions{
+		Write: func(tmp string) error {
+			for name, data := range files {
+				if err := fsutil.WriteFile(filepath.Join(tmp, name), data); err != nil {
+					return fmt.Errorf("pipit: %w", err)
+				}
+			}
+			// Read back what was written: the files, not the memory, are the export.
+			if _, err := OpenExport(tmp); err != nil {
+				return fmt.Errorf("pipit: export check: %w", err)
+			}
+			return nil
+		},
+		Replaceable: replaceableExport,
+		Complete:    func(d string) error { _, err := OpenExport(d); return err },
+	})
+	if err != nil {
 		return nil, fmt.Errorf("pipit: export: %w", err)
 	}
-	if err := fsutil.SyncDir(filepath.Dir(dir)); err != nil {
-		return nil, err
-	}
+	r.withDir(dir)
+	r.Recovered = notes
 	return r, nil
 }
 
-// Name parts of the folders an export works in beside its target dir:
-// ".DIR" + exportNew + random holds the new set being written;
-// ".DIR" + exportOld + random the previous set while it is swapped out
-// where the system cannot exchange two folders in one step.
-const (
-	exportNew = ".pipit-new-"
-	exportOld = ".pipit-old-"
-)
+// exportNames are the files an export may hold.
+func exportNames() map[string]bool {
+	n := map[string]bool{BlobFile: true, SchemeFile: true, CPrefix + ".h": true, CPrefix + "_fe.h": true}
+	for _, f := range runtimeFiles {
+		n[f.name] = true
+	}
+	for _, f := range frontEndFiles {
+		n[f.name] = true
+	}
+	return n
+}
 
-// prepareExportDir checks dir before an export: its parent must exist,
-// and dir must be missing, empty or an export (it holds SchemeFile).
-// Leftovers of interrupted exports beside it are removed; a previous
-// export swapped out by an interrupted fallback swap is put back first.
-func prepareExportDir(dir string) error {
-	parent, base := filepath.Dir(dir), filepath.Base(dir)
-	if fi, err := os.Stat(parent); err != nil || !fi.IsDir() {
-		return fmt.Errorf("pipit: export: folder %s does not exist", parent)
-	}
-	entries, err := os.ReadDir(parent)
+// replaceableExport returns nil if dir holds nothing but files an export
+// writes (and the temporary files an earlier per-file writer could leave,
+// .NAME.tmpN), so replacing it loses nothing else.
+func replaceableExport(dir string) error {
+	ents, err := os.ReadDir(dir)
 	if err != nil {
-		return fmt.Errorf("pipit: export: %w", err)
+		return err
 	}
-	_, statErr := os.Stat(dir)
-	for _, e := range entries {
+	names := exportNames()
+	var foreign []string
+	for _, e := range ents {
 		n := e.Name()
-		switch {
-		case strings.HasPrefix(n, "."+base+exportOld):
-			if errors.Is(statErr, fs.ErrNotExist) {
-				if err := os.Rename(filepath.Join(parent, n), dir); err != nil {
-					return fmt.Errorf("pipit: export: putting back the previous export: %w", err)
-				}
-				statErr = nil
-				continue
-			}
-			fallthrough
-		case strings.HasPrefix(n, "."+base+exportNew):
-			if err := os.RemoveAll(filepath.Join(parent, n)); err != nil {
-				return fmt.Errorf("pipit: export: removing a leftover of an interrupted export: %w", err)
-			}
+		if base, _, ok := strings.Cut(strings.TrimPrefix(n, "."), ".tmp"); ok && strings.HasPrefix(n, ".") && names[base] {
+			n = base
+		}
+		if !names[n] || !e.Type().IsRegular() {
+			foreign = append(foreign, e.Name())
 		}
 	}
-	fi, err := os.Stat(dir)
-	switch {
-	case errors.Is(err, fs.ErrNotExist):
-		return nil
-	case err != nil:
-		return fmt.Errorf("pipit: export: %w", err)
-	case !fi.IsDir():
-		return fmt.Errorf("pipit: export: %s exists and is not a folder", dir)
-	}
-	if _, err := os.Stat(filepath.Join(dir, SchemeFile)); err == nil {
+	if len(foreign) == 0 {
 		return nil
 	}
-	if names, err := os.ReadDir(dir); err != nil {
-		return fmt.Errorf("pipit: export: %w", err)
-	} else if len(names) > 0 {
-		return fmt.Errorf("pipit: export: %s holds files but no %s: it is not an export, and an export replaces the whole folder; choose another folder", dir, SchemeFile)
+	more := ""
+	if len(foreign) > 5 {
+		more = fmt.Sprintf(" and %d more", len(foreign)-5)
+		foreign = foreign[:5]
 	}
-	return nil
+	return fmt.Errorf("%s is not a pipit export (it holds %s%s), and an export replaces the whole directory; give a new or empty directory", dir, strings.Join(foreign, ", "), more)
+}
+
+// OpenExport reads the export in dir and checks that it is complete and
+// one set: the blob and scheme as [quant.ImportFiles] checks them, and
+// every other file exactly as this pipit writes it for the model they
+// hold (the headers record the scheme's seal). Errors name the file at
+// fault. It returns the model.
+func OpenExport(dir string) (*quant.Model, error) {
+	if _, err := os.Stat(dir); os.IsNotExist(err) {
+		if olds, _ := filepath.Glob(filepath.Join(filepath.Dir(dir), "."+filepath.Base(dir)+".old-*")); len(olds) > 0 {
+			return nil, fmt.Errorf("pipit: %s does not exist; a killed pipit export left the previous export in %s, which the next pipit export to %s (or RecoverExport) puts back", dir, olds[0], dir)
+		}
+	}
+	q, doc, err := quant.ImportSet(filepath.Join(dir, BlobFile), filepath.Join(dir, SchemeFile))
+	if err != nil {
+		return nil, err
+	}
+	files, _, want, err := exportSet(q)
+	if err != nil {
+		return nil, err
+	}
+	if want.Seal != doc.Seal {
+		return nil, fmt.Errorf("pipit: %s: not the scheme this pipit writes for the model it describes (seal %.12s…, rewritten %.12s…); export the model again", filepath.Join(dir, SchemeFile), doc.Seal, want.Seal)
+	}
+	names := make([]string, 0, len(files))
+	for n := range files {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+	for _, n := range names {
+		if n == SchemeFile {
+			continue
+		}
+		p := filepath.Join(dir, n)
+		got, err := os.ReadFile(p)
+		switch {
+		case os.IsNotExist(err):
+			return nil, fmt.Errorf("pipit: %s: missing; the export is incomplete", p)
+		case err != nil:
+			return nil, fmt.Errorf("pipit: %w", err)
+		case bytes.Equal(got, files[n]):
+			continue
+		}
+		if strings.HasSuffix(n, ".h") && quant.HeaderSeal(files[n]) != "" {
+			if s := quant.HeaderSeal(got); s != doc.Seal {
+				return nil, fmt.Errorf("pipit: %s: sealed %.12s…, %s %.12s…: the files come from different exports", p, s, SchemeFile, doc.Seal)
+			}
+			return nil, fmt.Errorf("pipit: %s: differs from the header this export's blob and scheme make (edited after export?)", p)
+		}
+		return nil, fmt.Errorf("pipit: %s: differs from the file this pipit writes (edited, or written by another pipit version)", p)
+	}
+	return q, nil
+}
+
+// RecoverExport repairs what killed [Export] runs left beside dir (see
+// internal/fsutil.RecoverDir): it removes their temporary directories
+// .NAME.tmp-N and, when dir is missing because a run was killed between
+// its two renames, puts back the previous export from .NAME.old-N if it
+// is complete ([OpenExport]). It returns what it did, one note each.
+// Export calls it first.
+func RecoverExport(dir string) ([]string, error) {
+	notes, err := fsutil.RecoverDir(dir, func(d string) error { _, err := OpenExport(d); return err })
+	if err != nil {
+		return notes, fmt.Errorf("pipit: %w", err)
+	}
+	return notes, nil
 }
 
 // DeviceFrontEnd returns the C front end of q from its model info (front

@@ -39,11 +39,12 @@ func logitsOf(q *quant.Model, in []int8) []int8 {
 	return o[len(o)-1]
 }
 
-// VerifyRoundTrip imports the export e from its files and checks that it
+// VerifyRoundTrip reads the export e back from its directory, checking
+// that it is complete and one set ([OpenExport]), and checks that it
 // gives the same int8 logits as q on every input; it returns the imported
 // model.
 func VerifyRoundTrip(q *quant.Model, e *ExportResult, inputs [][]int8) (*quant.Model, error) {
-	back, err := quant.ImportFiles(e.Blob, e.Scheme)
+	back, err := OpenExport(e.Dir)
 	if err != nil {
 		return nil, err
 	}

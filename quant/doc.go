@@ -31,8 +31,9 @@
 //
 // Two formats. The quantised model file ([Model.WriteFile]) is pipit's own
 // working format: "PIPITQM1", uint32 version, uint32 JSON length, the
-// [Model] as JSON, CRC-32. The device export ([Export]) is a flat blob and
-// a JSON scheme description, version 1 each:
+// [Model] as JSON, CRC-32. The device export ([Export]) is a flat blob
+// (version [BlobVersion]) and a JSON scheme description (version
+// [SchemeVersion]):
 //
 //	blob   offset 0   "PIPITBLB"
 //	       offset 8   uint32 version (BlobVersion)
@@ -45,17 +46,21 @@
 //	       multiplier, 4 int32 shift, each per output channel
 //
 // The scheme ([SchemeDoc], "format": "pipit-scheme") carries the blob's
-// size and CRC, the model info (front end, normalisation, classes, window),
+// size, CRC-32 and SHA-256, the model info (front end, normalisation, classes, window),
 // the quantisation rules in words, input and output shapes and parameters,
 // every layer in execution order (op, shapes, kernel, stride, leading
 // padding, input and output buffer ids, activation and clamp, input and
 // output scale and zero point, weight scales, its blob sections with
 // offset, length, type and layout, MACs), the memory plan (pool size and
 // each buffer's offset and size) and totals (flash, weight and overhead
-// bytes, RAM, MACs). All little-endian. Every field is described in
-// docs/export-format.md; [Import] rejects a damaged blob or a scheme that
-// does not match it with [ErrFormat]. Readers reject unknown versions.
-// [CHeader] renders blob and layer table as C for quant/cref/c/pipit_rt.h.
+// bytes, RAM, MACs), the generated C headers of the export, and its seal:
+// the SHA-256 of its own canonical content ([SchemeDigest]), which every
+// generated header records too. All little-endian. Every field is
+// described in docs/export-format.md; [Import] rejects with [ErrFormat] a
+// damaged blob, a scheme edited after export (its seal no longer matches)
+// or one that describes another blob, and [ImportFiles] also a header of
+// another export. Readers reject unknown versions. [CHeader] renders blob
+// and layer table as C for quant/cref/c/pipit_rt.h.
 //
 // # Errors
 //

@@ -28,6 +28,15 @@ func newExportCmd() *cobra.Command {
   pipit_net_fe.h     the front end's tables (window, twiddles, mel triangles,
                      band statistics, input quantisation) for pipit_fe.c
   pipit_fe.h/.c      the C99 front end: 16-bit PCM in, int8 network input out
+The scheme and both generated headers record one seal (a SHA-256 over the
+scheme's content, which includes the blob's SHA-256); an edited scheme or a
+file of another export is refused on import.
+
+DIR is written as a whole: the files go into a new directory beside it
+(.DIR.tmp-N), are read back, and then replace DIR in one rename, so DIR holds
+the earlier export or the new one even if export is killed. An existing DIR
+must be an export (only the files above); anything else is refused.
+Leftovers of killed runs beside DIR are removed first.
 The format is documented in docs/export-format.md.`,
 		Args: cobra.NoArgs,
 	}
@@ -55,9 +64,12 @@ The format is documented in docs/export-format.md.`,
 }
 
 func printExport(w io.Writer, r *exportReport) {
+	for _, n := range r.Recovered {
+		fmt.Fprintln(w, n)
+	}
 	fmt.Fprintf(w, "exported to %s:\n  %s (%d bytes: %d int8 weights + %d bytes of bias, multipliers, shifts, header and table; CRC-32 %s)\n  %s\n  %s, %s, %s\n",
 		r.Dir, r.Blob, r.FlashBytes, r.WeightBytes, r.OverheadBytes, r.CRC32, r.Scheme, r.Header, r.Runtime[0], r.Runtime[1])
-	fmt.Fprintf(w, "RAM pool %d bytes, %d MACs per inference\n", r.RAMBytes, r.MACs)
+	fmt.Fprintf(w, "RAM pool %d bytes, %d MACs per inference; seal %s\n", r.RAMBytes, r.MACs, r.Seal)
 	if r.FrontEndNote != "" {
 		fmt.Fprintln(w, r.FrontEndNote)
 	}

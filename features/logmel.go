@@ -201,17 +201,33 @@ func (e *Extractor) ComputeInto(dst, samples []float32) (int, error) {
 }
 
 func (e *Extractor) computeInto(out, samples []float32, nf int) {
+	e.computeRange(out, nf, samples, 0, 0, nf)
+}
+
+// computeRange computes frames first … first+nf−1 of a signal of which
+// seg holds the samples from absolute index segStart on, writing frame
+// first+j to column j of out, (Bands, stride). Samples before segStart or
+// after seg are taken as zeros, so seg must hold every sample of the
+// signal that those frames cover. With segStart = first = 0 and seg the
+// whole signal it is [Extractor.Compute]; [MatrixStream] calls it on
+// stretches of a longer signal, with first a multiple of fft.Lanes, so that
+// every frame goes through the same lane of the same code.
+func (e *Extractor) computeRange(out []float32, stride int, seg []float32, segStart, first, nf int) {
 	pad := 0
 	if e.cfg.PadEnds {
 		pad = e.cfg.WindowSamples / 2
 	}
+	// Frame first+j starts at (first+j)·hop − pad in the signal, at
+	// j·hop − pad' in seg with pad' below.
+	pad += segStart - first*e.cfg.HopSamples
 	if e.blk != nil {
-		e.computeBlocks(out, samples, nf, pad)
+		e.computeBlocks(out, stride, seg, nf, pad)
 		return
 	}
 	if len(e.frameBuf) != e.cfg.WindowSamples {
 		e.frameBuf, e.colBuf = make([]float32, e.cfg.WindowSamples), make([]float32, e.cfg.Bands)
 	}
+	samples := seg
 	frame, col := e.frameBuf, e.colBuf
 	for t := 0; t < nf; t++ {
 		start := t*e.cfg.HopSamples - pad
@@ -229,7 +245,7 @@ func (e *Extractor) computeInto(out, samples []float32, nf int) {
 			e.Frame(col, frame)
 		}
 		for m, v := range col {
-			out[m*nf+t] = v
+			out[m*stride+t] = v
 		}
 	}
 }
@@ -237,8 +253,8 @@ func (e *Extractor) computeInto(out, samples []float32, nf int) {
 // computeBlocks is [Extractor.Compute] fft.Lanes frames at a time: the
 // same frames, window, spectrum, bands and compression, with the
 // spectrum and band sums in float32 (TestBlockPathMatchesFramePath). out
-// is (Bands, nf).
-func (e *Extractor) computeBlocks(out, samples []float32, nf, pad int) {
+// is (Bands, stride); frame t starts at sample t·hop − pad of samples.
+func (e *Extractor) computeBlocks(out []float32, stride int, samples []float32, nf, pad int) {
 	b := e.blk
 	n := e.cfg.FFTSize
 	magnitude := e.cfg.Spectrum == SpectrumMagnitude
@@ -273,7 +289,7 @@ func (e *Extractor) computeBlocks(out, samples []float32, nf, pad int) {
 		}
 		lanes := min(fft.Lanes, nf-t0)
 		for m := 0; m < e.cfg.Bands; m++ {
-			copy(out[m*nf+t0:m*nf+t0+lanes], b.mel[m*fft.Lanes:])
+			copy(out[m*stride+t0:m*stride+t0+lanes], b.mel[m*fft.Lanes:])
 		}
 	}
 }

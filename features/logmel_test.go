@@ -252,6 +252,84 @@ func TestStreamMatchesBatch(t *testing.T) {
 	}
 }
 
+// TestMatrixStreamMatchesCompute: the chunked matrix equals Compute on the
+// whole signal bit for bit (on the AVX2 block path and, under
+// PIPIT_NOASM=1 or for an FFT size that is not a power of two, the frame
+// path), for chunks of any size, centring, hop larger than the window, an
+// FFT larger than the window, and signals shorter than one group of lanes
+// or than one window.
+func TestMatrixStreamMatchesCompute(t *testing.T) {
+	rng := rand.New(rand.NewPCG(31, 32))
+	x := make([]float32, 3*16000+321)
+	for i := range x {
+		x[i] = float32(0.3*math.Sin(float64(i)*0.05) + 0.1*rng.NormFloat64())
+	}
+	type variant struct {
+		name string
+		mod  func(*Config)
+		n    int // samples of x used
+	}
+	for _, v := range []variant{
+		{"default", func(*Config) {}, len(x)},
+		{"pad ends", func(c *Config) { c.PadEnds = true }, len(x)},
+		{"hop > window", func(c *Config) { c.WindowSamples, c.FFTSize, c.HopSamples = 256, 256, 300 }, len(x)},
+		{"fft > window", func(c *Config) {
+			c.WindowSamples, c.HopSamples, c.Window, c.SymmetricWindow = 400, 160, WindowHamming, true
+		}, len(x)},
+		{"fft not a power of two", func(c *Config) {
+			c.WindowSamples, c.FFTSize, c.HopSamples, c.PadEnds, c.Log = 400, 400, 160, true, LogNatural
+		}, len(x)},
+		{"three frames", func(c *Config) { c.PadEnds = true }, 700},
+		{"one frame", func(*Config) {}, 600},
+		{"shorter than a window", func(*Config) {}, 300},
+	} {
+		t.Run(v.name, func(t *testing.T) {
+			cfg := DefaultConfig()
+			v.mod(&cfg)
+			sig := x[:v.n]
+			e, err := NewExtractor(cfg)
+			if err != nil {
+				t.Fatal(err)
+			}
+			var want []float32
+			frames := cfg.Frames(len(sig))
+			if frames > 0 {
+				m, err := e.Compute(sig)
+				if err != nil {
+					t.Fatal(err)
+				}
+				want = m.Data().([]float32)
+			}
+			for _, maxChunk := range []int{1, 700, 40000} {
+				s, err := NewMatrixStream(cfg)
+				if err != nil {
+					t.Fatal(err)
+				}
+				var got []float32
+				for pos := 0; pos < len(sig); {
+					n := min(1+rng.IntN(maxChunk), len(sig)-pos)
+					got = s.Push(got, sig[pos:pos+n])
+					pos += n
+				}
+				got = s.Flush(got)
+				if s.Emitted() != frames || len(got) != frames*cfg.Bands {
+					t.Fatalf("chunks ≤ %d: %d frames (%d values), Compute %d", maxChunk, s.Emitted(), len(got), frames)
+				}
+				for tt := 0; tt < frames; tt++ {
+					for b := 0; b < cfg.Bands; b++ {
+						if g, w := got[tt*cfg.Bands+b], want[b*frames+tt]; math.Float32bits(g) != math.Float32bits(w) {
+							t.Fatalf("chunks ≤ %d: frame %d band %d: stream %v, Compute %v", maxChunk, tt, b, g, w)
+						}
+					}
+				}
+				if len(s.buf) > maxChunk+cfg.WindowSamples+matrixStreamChunk*cfg.HopSamples {
+					t.Errorf("chunks ≤ %d: %d samples still buffered", maxChunk, len(s.buf))
+				}
+			}
+		})
+	}
+}
+
 func TestFrameAndStreamDoNotAllocate(t *testing.T) {
 	cfg := DefaultConfig()
 	e, _ := NewExtractor(cfg)

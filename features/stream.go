@@ -1,13 +1,21 @@
 package features
 
-import "fmt"
+import (
+	"fmt"
+	"slices"
+
+	"github.com/pipit-audio/pipit/internal/fft"
+)
 
 // Stream is a streaming log-mel extractor: it takes PCM at the configured
 // rate in chunks of any size and emits each frame as soon as its last
-// sample has arrived. The frames equal those of [Extractor.Compute] on the
-// concatenated signal (the same code computes both), including the
-// leading and, after [Stream.Flush], trailing zero padding when PadEnds is
-// set. A Stream is not safe for concurrent use.
+// sample has arrived. Each frame is [Extractor.Frame] (float64) of the
+// concatenated signal, including the leading and, after [Stream.Flush],
+// trailing zero padding when PadEnds is set: the frames of
+// [Extractor.Compute] on its frame path, and within about 1e-4 dB of them
+// where Compute takes the AVX2 block path (TestBlockPathMatchesFramePath);
+// [MatrixStream] equals Compute bit for bit. A Stream is not safe for
+// concurrent use.
 type Stream struct {
 	ex      *Extractor
 	buf     []float32 // (Window) samples of the frame being filled
@@ -107,4 +115,108 @@ func (s *Stream) Emitted() int { return s.emitted }
 // String describes the stream state (for debugging).
 func (s *Stream) String() string {
 	return fmt.Sprintf("features.Stream{seen: %d, emitted: %d}", s.seen, s.emitted)
+}
+
+// matrixStreamChunk is the most frames [MatrixStream] computes in one go
+// (a multiple of fft.Lanes).
+const matrixStreamChunk = 64
+
+// MatrixStream gives the log-mel matrix of [Extractor.Compute] for a
+// signal given in chunks, bit for bit: the same code computes the same
+// frames in the same groups (on the AVX2 block path, fft.Lanes frames at a
+// time in float32), on a buffer that keeps only the samples later frames
+// still cover, so signals of any length pass through in bounded memory.
+// Unlike [Stream], which computes each frame on its own in float64 as
+// soon as it is complete, it may hold up to fft.Lanes − 1 complete frames
+// until more samples or [MatrixStream.Flush] arrive. PCM must be at the
+// configured rate. A MatrixStream is not safe for concurrent use.
+type MatrixStream struct {
+	ex      *Extractor
+	buf     []float32 // signal samples from absolute index base on
+	base    int       // absolute index of buf[0]
+	seen    int       // samples pushed
+	emitted int       // frames emitted (frame index of the next one)
+	out     []float32 // (Bands, matrixStreamChunk) scratch
+}
+
+// NewMatrixStream returns a MatrixStream for cfg; errors wrap
+// [ErrBadConfig].
+func NewMatrixStream(cfg Config) (*MatrixStream, error) {
+	ex, err := NewExtractor(cfg)
+	if err != nil {
+		return nil, err
+	}
+	return &MatrixStream{ex: ex, out: make([]float32, cfg.Bands*matrixStreamChunk)}, nil
+}
+
+// Push adds pcm and appends the frames it completes to dst, frame-major
+// (Bands values per frame, frame t being column t of Compute's matrix),
+// returning the extended slice.
+func (s *MatrixStream) Push(dst, pcm []float32) []float32 {
+	s.buf = append(s.buf, pcm...)
+	s.seen += len(pcm)
+	c := s.ex.cfg
+	pad := 0
+	if c.PadEnds {
+		pad = c.WindowSamples / 2
+	}
+	// Frames t with t·hop − pad + Window ≤ seen have all their samples.
+	ready := 0
+	if s.seen+pad >= c.WindowSamples {
+		ready = 1 + (s.seen+pad-c.WindowSamples)/c.HopSamples
+	}
+	// Whole groups of lanes only, so that every frame keeps its lane.
+	if n := (ready - s.emitted) / fft.Lanes * fft.Lanes; n > 0 {
+		dst = s.emit(dst, n)
+	}
+	return dst
+}
+
+// Flush ends the signal and appends its remaining frames, so that the
+// frames emitted since [NewMatrixStream] are [Config.Frames] of all
+// samples pushed (none for a signal shorter than one window, which
+// Compute refuses).
+func (s *MatrixStream) Flush(dst []float32) []float32 {
+	if n := s.ex.cfg.Frames(s.seen) - s.emitted; n > 0 {
+		dst = s.emit(dst, n)
+	}
+	return dst
+}
+
+// Emitted returns the number of frames emitted so far.
+func (s *MatrixStream) Emitted() int { return s.emitted }
+
+// Samples returns the number of samples pushed so far.
+func (s *MatrixStream) Samples() int { return s.seen }
+
+// emit computes the next n frames into dst and drops the samples that no
+// later frame covers.
+func (s *MatrixStream) emit(dst []float32, n int) []float32 {
+	c := s.ex.cfg
+	B := c.Bands
+	for n > 0 {
+		k := min(n, matrixStreamChunk)
+		s.ex.computeRange(s.out, matrixStreamChunk, s.buf, s.base, s.emitted, k)
+		at := len(dst)
+		dst = slices.Grow(dst, k*B)[:at+k*B]
+		for j := 0; j < k; j++ {
+			col := dst[at+j*B : at+(j+1)*B]
+			for m := range col {
+				col[m] = s.out[m*matrixStreamChunk+j]
+			}
+		}
+		s.emitted += k
+		n -= k
+	}
+	pad := 0
+	if c.PadEnds {
+		pad = c.WindowSamples / 2
+	}
+	if keep := s.emitted*c.HopSamples - pad; keep > s.base {
+		drop := min(keep-s.base, len(s.buf))
+		m := copy(s.buf, s.buf[drop:])
+		s.buf = s.buf[:m]
+		s.base += drop
+	}
+	return dst
 }

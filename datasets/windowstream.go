@@ -8,14 +8,15 @@ import (
 
 // WindowStream cuts a recording given in PCM chunks into the same
 // normalised model windows as [CutRecording] gives for the whole
-// recording, keeping only the frames the next window needs, so recordings
-// of any length pass through in bounded memory. PCM must be at the front
-// end's rate. It is not safe for concurrent use.
+// recording, bit for bit (its frames come from [features.MatrixStream]),
+// keeping only the samples and frames the next window needs, so
+// recordings of any length pass through in bounded memory. PCM must be at
+// the front end's rate. It is not safe for concurrent use.
 type WindowStream struct {
 	fe    features.Config
 	w     WindowConfig
 	stats *features.BandStats
-	st    *features.Stream
+	st    *features.MatrixStream
 	need  int       // samples one window covers (w.Samples(fe))
 	head  []float32 // the first need samples, for padding a short recording
 	seen  int       // samples pushed
@@ -33,7 +34,7 @@ func NewWindowStream(fe features.Config, w WindowConfig, stats *features.BandSta
 	if err := w.Check(); err != nil {
 		return nil, err
 	}
-	st, err := features.NewStream(fe)
+	st, err := features.NewMatrixStream(fe)
 	if err != nil {
 		return nil, err
 	}

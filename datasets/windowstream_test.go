@@ -54,12 +54,8 @@ func TestWindowStreamMatchesCutRecording(t *testing.T) {
 				t.Fatalf("%+v: window %d starts at %.3f s, CutRecording %.3f s", c, i, starts[i], rec.StartSec[i])
 			}
 		}
-		// the stream computes frames one at a time in float64, CutRecording
-		// in blocks of eight in float32 where the CPU has AVX2; the features
-		// tests hold the two paths to 1e-3 dB (3.1e-5 dB measured), and 1e-4
-		// here (common practice for float32 dB values near 40)
 		for i := range got {
-			if d := math.Abs(float64(got[i] - rec.Inputs[i])); d > 1e-4 {
+			if math.Float32bits(got[i]) != math.Float32bits(rec.Inputs[i]) {
 				t.Fatalf("%+v: value %d is %g, CutRecording %g", c, i, got[i], rec.Inputs[i])
 			}
 		}

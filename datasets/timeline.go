@@ -72,31 +72,59 @@ type Segment struct {
 // each lasting windowSec) into segments of equal arg-max class. A
 // segment ends where the next one's first window starts (the last one at
 // its last window's end), so segments tile the recording without overlap.
+// It is [Segmenter] over all windows at once.
 func Segments(probs []float32, classes []string, starts []float64, windowSec float64) ([]Segment, error) {
 	L := len(classes)
 	if L == 0 || len(probs) != L*len(starts) {
 		return nil, fmt.Errorf("datasets: %d probabilities for %d windows of %d classes", len(probs), len(starts), L)
 	}
-	var segs []Segment
+	sg := NewSegmenter(classes, windowSec)
 	for i, s := range starts {
-		p := probs[i*L : (i+1)*L]
-		best := 0
-		for c := range p {
-			if p[c] > p[best] {
-				best = c
-			}
-		}
-		if n := len(segs); n > 0 && segs[n-1].Class == best {
-			last := &segs[n-1]
-			last.MeanProb += (float64(p[best]) - last.MeanProb) / float64(last.Windows+1)
-			last.Windows++
-			last.EndSec = s + windowSec
-			continue
-		}
-		if n := len(segs); n > 0 {
-			segs[n-1].EndSec = s
-		}
-		segs = append(segs, Segment{StartSec: s, EndSec: s + windowSec, Class: best, Label: classes[best], MeanProb: float64(p[best]), Windows: 1})
+		sg.Add(probs[i*L:(i+1)*L], s)
 	}
-	return segs, nil
+	return sg.Segments(), nil
 }
+
+// Segmenter builds the segments of [Segments] one window at a time, so a
+// time line of any length keeps only its segments.
+type Segmenter struct {
+	classes   []string
+	windowSec float64
+	segs      []Segment
+}
+
+// NewSegmenter returns a Segmenter for windows of windowSec seconds over
+// classes.
+func NewSegmenter(classes []string, windowSec float64) *Segmenter {
+	return &Segmenter{classes: classes, windowSec: windowSec}
+}
+
+// Add takes the next window: its class probabilities p (one per class)
+// and its start in seconds. It panics when len(p) is not the number of
+// classes.
+func (sg *Segmenter) Add(p []float32, start float64) {
+	if len(p) != len(sg.classes) || len(p) == 0 {
+		panic(fmt.Sprintf("datasets: Segmenter.Add: %d probabilities for %d classes", len(p), len(sg.classes)))
+	}
+	best := 0
+	for c := range p {
+		if p[c] > p[best] {
+			best = c
+		}
+	}
+	segs := sg.segs
+	if n := len(segs); n > 0 && segs[n-1].Class == best {
+		last := &segs[n-1]
+		last.MeanProb += (float64(p[best]) - last.MeanProb) / float64(last.Windows+1)
+		last.Windows++
+		last.EndSec = start + sg.windowSec
+		return
+	}
+	if n := len(segs); n > 0 {
+		segs[n-1].EndSec = start
+	}
+	sg.segs = append(segs, Segment{StartSec: start, EndSec: start + sg.windowSec, Class: best, Label: sg.classes[best], MeanProb: float64(p[best]), Windows: 1})
+}
+
+// Segments returns the segments so far (the Segmenter's own slice).
+func (sg *Segmenter) Segments() []Segment { return sg.segs }

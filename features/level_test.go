@@ -2,6 +2,7 @@ package features
 
 import (
 	"math"
+	"math/rand/v2"
 	"testing"
 )
 
@@ -62,5 +63,72 @@ func TestALevelDBFS(t *testing.T) {
 		if err != nil || math.Abs(got-c.want) > 0.01 {
 			t.Errorf("%g Hz sine: %.4f dB FS (%v), want %.4f", c.f, got, err, c.want)
 		}
+	}
+}
+
+// pushChunks feeds x to m in chunks of random size up to maxChunk.
+func pushChunks(m *ALevelMeter, x []float32, rng *rand.Rand, maxChunk int) {
+	for i := 0; i < len(x); {
+		n := min(1+rng.IntN(maxChunk), len(x)-i)
+		m.Push(x[i : i+n])
+		i += n
+	}
+}
+
+// TestALevelMeter: in chunks, a signal of at most one block reads exactly
+// ALevelDBFS of the whole; a longer one (white noise over 2.4 blocks, the
+// last zero-padded) agrees with ALevelDBFS of the whole within 0.02 dB,
+// and a full-scale 1 kHz sine at 44.1 kHz over 2.6 blocks reads
+// 10·lg ½ = −3.0103 dB FS (A(1 kHz) = 0 dB, IEC 61672-1 Table 3); silence
+// is −Inf, one sample an error.
+func TestALevelMeter(t *testing.T) {
+	rng := rand.New(rand.NewPCG(41, 42))
+	noise := func(n int) []float32 {
+		x := make([]float32, n)
+		for i := range x {
+			x[i] = float32(0.1 * rng.NormFloat64())
+		}
+		return x
+	}
+	for _, n := range []int{2, 12345, 16000, ALevelBlockSamples} {
+		x := noise(n)
+		want, err := ALevelDBFS(x, 16000)
+		if err != nil {
+			t.Fatal(err)
+		}
+		m, _ := NewALevelMeter(16000)
+		pushChunks(m, x, rng, 5000)
+		got, err := m.LevelDBFS()
+		if err != nil || math.Float64bits(got) != math.Float64bits(want) {
+			t.Errorf("%d samples: meter %v (%v), ALevelDBFS %v", n, got, err, want)
+		}
+	}
+	x := noise(19 << 17) // 2 blocks and 3/8 of one
+	want, _ := ALevelDBFS(x, 16000)
+	m, _ := NewALevelMeter(16000)
+	pushChunks(m, x, rng, 100000)
+	if got, err := m.LevelDBFS(); err != nil || math.Abs(got-want) > 0.02 {
+		t.Errorf("white noise over 2.4 blocks: meter %.4f dB FS (%v), ALevelDBFS of the whole %.4f", got, err, want)
+	} else {
+		t.Logf("white noise over 2.4 blocks: meter %.5f dB FS, whole signal %.5f", got, want)
+	}
+	sine := make([]float32, 2*ALevelBlockSamples+650000)
+	for i := range sine {
+		sine[i] = float32(math.Sin(2 * math.Pi * 1000 * float64(i) / 44100))
+	}
+	m, _ = NewALevelMeter(44100)
+	pushChunks(m, sine, rng, 100000)
+	if got, err := m.LevelDBFS(); err != nil || math.Abs(got+3.0103) > 0.01 {
+		t.Errorf("full-scale 1 kHz sine over 2.6 blocks: %.4f dB FS (%v), want −3.0103", got, err)
+	}
+	m, _ = NewALevelMeter(16000)
+	m.Push(make([]float32, ALevelBlockSamples+1000))
+	if got, err := m.LevelDBFS(); err != nil || !math.IsInf(got, -1) {
+		t.Errorf("silence: %v (%v), want −Inf", got, err)
+	}
+	m, _ = NewALevelMeter(16000)
+	m.Push([]float32{0.5})
+	if _, err := m.LevelDBFS(); err == nil {
+		t.Error("one sample: no error")
 	}
 }

@@ -31,3 +31,56 @@ func TestWriteWithKeepsOldFileOnError(t *testing.T) {
 		t.Fatalf("directory holds %d entries after failed write, want 1 (temp file left behind)", len(ents))
 	}
 }
+
+// TestOutputsAllOrNothing: committed outputs appear with their contents
+// and mode 0644; aborted ones leave the old files and no temporary file.
+func TestOutputsAllOrNothing(t *testing.T) {
+	dir := t.TempDir()
+	a, b := filepath.Join(dir, "yard.csv"), filepath.Join(dir, "yard.png")
+	if err := WriteFile(a, []byte("old csv")); err != nil {
+		t.Fatal(err)
+	}
+	var o Outputs
+	wa, err := o.Create(a)
+	if err != nil {
+		t.Fatal(err)
+	}
+	wb, err := o.Create(b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	io.WriteString(wa, "new csv")
+	io.WriteString(wb, "new png")
+	o.Abort()
+	if got, _ := os.ReadFile(a); string(got) != "old csv" {
+		t.Errorf("after Abort %s holds %q, want the old contents", a, got)
+	}
+	if _, err := os.Stat(b); !os.IsNotExist(err) {
+		t.Errorf("after Abort %s exists (%v)", b, err)
+	}
+	if ents, _ := os.ReadDir(dir); len(ents) != 1 {
+		t.Errorf("after Abort the directory holds %d entries, want 1 (temporary files left)", len(ents))
+	}
+
+	var c Outputs
+	wa, _ = c.Create(a)
+	wb, _ = c.Create(b)
+	io.WriteString(wa, "new csv")
+	io.WriteString(wb, "new png")
+	if err := c.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	for p, want := range map[string]string{a: "new csv", b: "new png"} {
+		got, _ := os.ReadFile(p)
+		fi, err := os.Stat(p)
+		if string(got) != want || err != nil || fi.Mode().Perm() != 0o644 {
+			t.Errorf("after Commit %s holds %q (mode %v, %v), want %q, 0644", p, got, fi.Mode().Perm(), err, want)
+		}
+	}
+	if ents, _ := os.ReadDir(dir); len(ents) != 2 {
+		t.Errorf("after Commit the directory holds %d entries, want 2", len(ents))
+	}
+	if _, err := c.Create(filepath.Join(dir, "no-such-dir", "x.csv")); err == nil {
+		t.Error("Create in a missing directory: no error")
+	}
+}

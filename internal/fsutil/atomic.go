@@ -85,8 +85,9 @@ func (o *Outputs) Create(path string) (io.Writer, error) {
 }
 
 // Commit completes every file (flush, mode 0644, sync, close) and then
-// renames each over its target. On error every temporary file left is
-// removed and the error names the file.
+// renames each over its target, after checking that no target is a
+// directory. On error every temporary file left is removed and the error
+// names the file.
 func (o *Outputs) Commit() error {
 	for _, out := range o.files {
 		err := out.w.Flush()
@@ -103,6 +104,14 @@ func (o *Outputs) Commit() error {
 		if err != nil {
 			o.Abort()
 			return fmt.Errorf("writing %s: %w", out.path, err)
+		}
+	}
+	// A directory in a target's place would fail its rename after the
+	// others had been done: refuse before renaming any.
+	for _, out := range o.files {
+		if fi, err := os.Stat(out.path); err == nil && fi.IsDir() {
+			o.Abort()
+			return fmt.Errorf("writing %s: is a directory", out.path)
 		}
 	}
 	for i, out := range o.files {

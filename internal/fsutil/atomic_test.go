@@ -5,6 +5,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 )
 
@@ -79,6 +80,23 @@ func TestOutputsAllOrNothing(t *testing.T) {
 	}
 	if ents, _ := os.ReadDir(dir); len(ents) != 2 {
 		t.Errorf("after Commit the directory holds %d entries, want 2", len(ents))
+	}
+	// A directory in the second target's place: nothing is renamed.
+	if err := os.Mkdir(filepath.Join(dir, "d.png"), 0o755); err != nil {
+		t.Fatal(err)
+	}
+	var d Outputs
+	wa, _ = d.Create(a)
+	wb, _ = d.Create(filepath.Join(dir, "d.png"))
+	io.WriteString(wa, "newer csv")
+	if err := d.Commit(); err == nil || !strings.Contains(err.Error(), "d.png") {
+		t.Errorf("Commit over a directory: error %v, want one naming d.png", err)
+	}
+	if got, _ := os.ReadFile(a); string(got) != "new csv" {
+		t.Errorf("after a failed Commit %s holds %q, want the committed contents", a, got)
+	}
+	if ents, _ := os.ReadDir(dir); len(ents) != 3 {
+		t.Errorf("after a failed Commit the directory holds %d entries, want 3 (temporary files left)", len(ents))
 	}
 	if _, err := c.Create(filepath.Join(dir, "no-such-dir", "x.csv")); err == nil {
 		t.Error("Create in a missing directory: no error")

@@ -57,7 +57,9 @@ type HeatMap struct {
 }
 
 // WritePNG draws h with a vertical colour bar on the right and writes the
-// PNG to w. It returns an error for an empty or constant grid.
+// PNG to w. The colours span the finite values; NaN and infinite cells
+// are drawn in the heat map's NaN colour. It returns an error for an
+// empty grid or one without a finite value.
 func (h HeatMap) WritePNG(w io.Writer) error {
 	cols, rows := h.Grid.Dims()
 	if cols == 0 || rows == 0 {
@@ -66,8 +68,13 @@ func (h HeatMap) WritePNG(w io.Writer) error {
 	lo, hi := math.Inf(1), math.Inf(-1)
 	for _, row := range h.Grid.Values {
 		for _, v := range row {
-			lo, hi = math.Min(lo, v), math.Max(hi, v)
+			if !math.IsNaN(v) && !math.IsInf(v, 0) { // such cells are drawn in the NaN colour
+				lo, hi = math.Min(lo, v), math.Max(hi, v)
+			}
 		}
+	}
+	if math.IsInf(lo, 1) {
+		return fmt.Errorf("plots: no finite value to draw")
 	}
 	if !(hi > lo) {
 		hi = lo + 1 // a constant matrix still gets a usable colour bar

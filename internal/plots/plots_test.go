@@ -3,6 +3,7 @@ package plots
 import (
 	"bytes"
 	"image/png"
+	"math"
 	"testing"
 )
 
@@ -26,6 +27,15 @@ func TestHeatMapPNG(t *testing.T) {
 	}
 	if err := (HeatMap{}).WritePNG(&buf); err == nil {
 		t.Error("empty grid gave no error")
+	}
+	// NaN and infinite cells (a model gone wrong) are drawn, not a panic
+	// of the palette; a grid with nothing finite is an error.
+	nan, inf := math.NaN(), math.Inf(1)
+	if err := (HeatMap{Grid: Grid{Values: [][]float64{{nan, 1, inf}, {0, -inf, 2}}, DX: 1, DY: 1}}).WritePNG(&buf); err != nil {
+		t.Errorf("grid with NaN and infinite cells: %v", err)
+	}
+	if err := (HeatMap{Grid: Grid{Values: [][]float64{{nan, inf}}, DX: 1, DY: 1}}).WritePNG(&buf); err == nil {
+		t.Error("grid without a finite value gave no error")
 	}
 }
 

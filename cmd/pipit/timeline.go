@@ -1,9 +1,7 @@
 package main
 
 import (
-	"encoding/csv"
 	"fmt"
-	"io"
 	"path/filepath"
 	"strings"
 
@@ -11,12 +9,9 @@ import (
 
 	"github.com/pipit-audio/pipit"
 	"github.com/pipit-audio/pipit/datasets"
-	"github.com/pipit-audio/pipit/features"
-	"github.com/pipit-audio/pipit/internal/fsutil"
-	"github.com/pipit-audio/pipit/internal/plots"
-	"github.com/pipit-audio/pipit/nn"
 )
 
+// timelineReport is what `pipit timeline --json` prints.
 type timelineReport struct {
 	Input      string             `json:"input"`
 	Model      string             `json:"model"`
@@ -37,12 +32,16 @@ func newTimelineCmd() *cobra.Command {
 	cmd := &cobra.Command{
 		Use:   "timeline --model MODEL IN.wav",
 		Short: "Classify a long recording window by window into a time line",
-		Long: `timeline cuts a recording of any length into the model's windows
-(--overlap, default the model's), runs the float or int8 model on each, and
-writes PREFIX.timeline.csv (one row per window: start, end, most likely
-class, its probability, then every class's probability), PREFIX.timeline.png
-(class probabilities over time) and prints the segments of equal most
-likely class. Classifications are indicative, not a certified measurement.`,
+		Long: fmt.Sprintf(`timeline reads a recording of any length block by block, cuts it into
+the model's windows (--overlap, default the model's own, the overlap it
+was trained with), runs the float or int8 model on each, and writes
+PREFIX.timeline.csv (a header, then one row per window: start, end, most
+likely class, its probability, then every class's probability) as it
+goes, PREFIX.timeline.png (class probabilities over time; past %d windows
+each column is the mean of 2, 4, 8 … windows) and prints the segments of
+equal most likely class. Memory does not grow with the recording; both
+files appear only when the command succeeds. Classifications are
+indicative, not a certified measurement.`, pipit.PlotColumns),
 		Args: cobra.ExactArgs(1),
 	}
 	cmd.Flags().StringVar(&model, "model", "", "float or int8 model (required)")
@@ -84,65 +83,14 @@ func runTimeline(model, in, out string, overlap float64) (*timelineReport, error
 		return nil, err
 	}
 	defer m.Close()
-	info := m.Info()
-	a, err := features.ReadWAVFile(in)
-	if err != nil {
-		return nil, err
-	}
-	win := info.Window
+	var cfg pipit.TimelineConfig
 	if overlap >= 0 {
-		win.Overlap = overlap
+		cfg.Overlap = &overlap
 	}
-	rec, err := datasets.CutRecording(a, info.FrontEnd, win, info.Stats)
-	if err != nil {
-		return nil, fmt.Errorf("%s: %w", in, err)
-	}
-	L := len(info.Classes)
-	probs := pipit.Probabilities(m, rec.Inputs, rec.N)
-	segs, err := datasets.Segments(probs, info.Classes, rec.StartSec, rec.WindowSec)
+	r, err := pipit.Timeline(m, in, out, cfg)
 	if err != nil {
 		return nil, err
 	}
-	rep := &timelineReport{Input: in, Model: model, Seconds: a.Seconds(), Windows: rec.N, WindowSec: rec.WindowSec, Overlap: win.Overlap,
-		Segments: segs, ClassTotal: map[string]float64{}, CSV: out + ".timeline.csv", PNG: out + ".timeline.png"}
-	for _, s := range segs {
-		rep.ClassTotal[s.Label] += s.EndSec - s.StartSec
-	}
-	err = fsutil.WriteWith(rep.CSV, func(w io.Writer) error {
-		cw := csv.NewWriter(w)
-		cw.Write(append([]string{"start_s", "end_s", "class", "probability"}, info.Classes...))
-		row := make([]string, 4+L)
-		for i, st := range rec.StartSec {
-			p := probs[i*L : (i+1)*L]
-			best := nn.Argmax(p)
-			row[0], row[1], row[2], row[3] = fmt.Sprintf("%.3f", st), fmt.Sprintf("%.3f", st+rec.WindowSec), info.Classes[best], fmt.Sprintf("%.4f", p[best])
-			for k, v := range p {
-				row[4+k] = fmt.Sprintf("%.4f", v)
-			}
-			cw.Write(row)
-		}
-		cw.Flush()
-		return cw.Error()
-	})
-	if err != nil {
-		return nil, err
-	}
-	g := plots.Grid{Values: make([][]float64, L), DY: 1}
-	if rec.N > 1 {
-		g.X0, g.DX = rec.StartSec[0]+rec.WindowSec/2, rec.StartSec[1]-rec.StartSec[0]
-	} else {
-		g.X0, g.DX = rec.WindowSec/2, rec.WindowSec
-	}
-	for c := 0; c < L; c++ {
-		g.Values[c] = make([]float64, rec.N)
-		for i := 0; i < rec.N; i++ {
-			g.Values[c][i] = float64(probs[i*L+c])
-		}
-	}
-	fig := plots.HeatMap{Title: "class probabilities over time: " + filepath.Base(in), XLabel: "time (s, window centres)", YLabel: "", BarLabel: "probability",
-		Grid: g, YTicks: info.Classes}
-	if err := plots.SavePNG(rep.PNG, fig); err != nil {
-		return nil, err
-	}
-	return rep, nil
+	return &timelineReport{Input: r.Input, Model: model, Seconds: r.Seconds, Windows: r.Windows, WindowSec: r.WindowSec, Overlap: r.Overlap,
+		Segments: r.Segments, ClassTotal: r.ClassTotal, CSV: r.CSV, PNG: r.PNG}, nil
 }

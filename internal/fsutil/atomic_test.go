@@ -88,6 +88,7 @@ func TestOutputsAllOrNothing(t *testing.T) {
 	var d Outputs
 	wa, _ = d.Create(a)
 	wb, _ = d.Create(filepath.Join(dir, "d.png"))
+	io.WriteString(wb, "newer png")
 	io.WriteString(wa, "newer csv")
 	if err := d.Commit(); err == nil || !strings.Contains(err.Error(), "d.png") {
 		t.Errorf("Commit over a directory: error %v, want one naming d.png", err)

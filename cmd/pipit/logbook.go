@@ -1,9 +1,10 @@
 package main
 
 import (
+	"bytes"
 	"encoding/json"
 	"fmt"
-	"os"
+	"io"
 	"path/filepath"
 	"strings"
 
@@ -61,7 +62,7 @@ CAUTION: ` + logbook.Caution,
 	f := cmd.Flags()
 	f.StringVar(&model, "model", "", "float or int8 model (required)")
 	f.StringVar(&out, "out", "", "output prefix (default: IN without .wav)")
-	f.Float64Var(&overlap, "overlap", -1, "window overlap in [0, 1) (default: the model's)")
+	f.Float64Var(&overlap, "overlap", 0, "window overlap, at least 0 and below 1 (default: the model's)")
 	f.Float64Var(&onProb, "on-prob", 0.5, "probability at which a class starts an event")
 	f.Float64Var(&offProb, "off-prob", 0.3, "probability below which the current class ends (hysteresis; ≤ --on-prob)")
 	f.Float64Var(&minEvent, "min-event", 1, "drop events shorter than this, seconds")
@@ -75,6 +76,9 @@ CAUTION: ` + logbook.Caution,
 		in := args[0]
 		if out == "" {
 			out = strings.TrimSuffix(in, filepath.Ext(in))
+		}
+		if cmd.Flags().Changed("overlap") && !(overlap >= 0 && overlap < 1) {
+			return fmt.Errorf("--overlap %g: want at least 0 and below 1 (0.5: windows start half a window apart)", overlap)
 		}
 		var cal logbook.Calibration
 		var err error
@@ -96,7 +100,7 @@ CAUTION: ` + logbook.Caution,
 		defer m.Close()
 		info := m.Info()
 		win := info.Window
-		if overlap >= 0 {
+		if cmd.Flags().Changed("overlap") {
 			win.Overlap = overlap
 		}
 		cfg := logbook.Config{FrontEnd: info.FrontEnd, Window: win, Stats: info.Stats, Classes: info.Classes,
@@ -112,14 +116,28 @@ CAUTION: ` + logbook.Caution,
 		rep := &logbookReport{Caution: logbook.Caution, LevelReference: cal.Reference(), Input: in, Model: model,
 			Calibration: cal, Windows: lb.Windows,
 			CSV: out + ".logbook.csv", JSON: out + ".logbook.json", PNG: out + ".logbook.png"}
-		if err := fsutil.WriteWith(rep.CSV, lb.WriteCSV); err != nil {
-			return err
+		// The three files appear together, only when all are written.
+		var outs fsutil.Outputs
+		defer outs.Abort()
+		var js bytes.Buffer
+		if err := lb.WriteJSON(&js); err != nil {
+			return fmt.Errorf("writing %s: %w", rep.JSON, err)
 		}
-		if err := fsutil.WriteWith(rep.JSON, lb.WriteJSON); err != nil {
-			return err
-		}
-		if err := plots.SavePNG(rep.PNG, logbookFigure(lb, in)); err != nil {
-			return err
+		for _, o := range []struct {
+			path  string
+			write func(io.Writer) error
+		}{
+			{rep.CSV, lb.WriteCSV},
+			{rep.JSON, func(w io.Writer) error { _, err := w.Write(js.Bytes()); return err }},
+			{rep.PNG, logbookFigure(lb, in).WritePNG},
+		} {
+			w, err := outs.Create(o.path)
+			if err != nil {
+				return err
+			}
+			if err := o.write(w); err != nil {
+				return fmt.Errorf("writing %s: %w", o.path, err)
+			}
 		}
 		// The report carries the same rounded figures as the files.
 		var rounded struct {
@@ -127,7 +145,10 @@ CAUTION: ` + logbook.Caution,
 			PerClass []logbook.ClassLevel `json:"per_class"`
 			Events   []logbook.Event      `json:"events"`
 		}
-		if err := decodeJSONFile(rep.JSON, &rounded); err != nil {
+		if err := json.Unmarshal(js.Bytes(), &rounded); err != nil {
+			return fmt.Errorf("%s: %w", rep.JSON, err)
+		}
+		if err := outs.Commit(); err != nil {
 			return err
 		}
 		rep.Summary, rep.PerClass, rep.Events = rounded.Summary, rounded.PerClass, rounded.Events
@@ -175,16 +196,4 @@ func logbookFigure(lb *logbook.Logbook, in string) plots.LevelTimeline {
 	}
 	return plots.LevelTimeline{Title: "noise logbook: " + filepath.Base(in) + " (indicative levels)", XLabel: "time (s)", YLabel: unit,
 		T: t, Level: l, Spans: spans, Classes: classes}
-}
-
-// decodeJSONFile reads the JSON file at path into v.
-func decodeJSONFile(path string, v any) error {
-	b, err := os.ReadFile(path)
-	if err != nil {
-		return err
-	}
-	if err := json.Unmarshal(b, v); err != nil {
-		return fmt.Errorf("%s: %w", path, err)
-	}
-	return nil
 }

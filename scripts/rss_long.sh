@@ -9,10 +9,19 @@
 # wall time of each, with the date and the CPU.
 #
 # PIPIT_BIN=path uses that binary instead of building ./cmd/pipit (to
-# measure an older build); KEEP_WORK=1 keeps the work directory.
+# measure an older build); KEEP_WORK=1 keeps the work directory;
+# RSS_LIMIT_MB (default 200) is the peak each command must stay under:
+# the script prints "over" and exits 1 when one does not.
+#
+# Needs GNU time at /usr/bin/time (Debian package "time").
 set -euo pipefail
 cd "$(dirname "$0")/.."
 seconds=${RSS_SECONDS:-7200}
+limit=${RSS_LIMIT_MB:-200}
+if ! /usr/bin/time -v true >/dev/null 2>&1; then
+	echo "rss_long.sh: needs GNU time at /usr/bin/time (apt-get install time)" >&2
+	exit 1
+fi
 work=$(mktemp -d)
 if [ "${KEEP_WORK:-0}" != 1 ]; then
 	trap 'rm -rf "$work"' EXIT
@@ -39,14 +48,24 @@ measure() {
 		tail -20 "$log" >&2
 		exit 1
 	fi
-	awk -v name="$name" -F': ' '
+	awk -v name="$name" -v limit="$limit" -F': ' '
 		/Maximum resident set size/ {rss = $2}
 		/Elapsed \(wall clock\) time/ {wall = $2}
-		END {printf "%-9s peak RSS %7.1f MB   wall %s\n", name, rss / 1024, wall}' "$log"
+		/User time \(seconds\)/ {cpu += $2}
+		/System time \(seconds\)/ {cpu += $2}
+		END {
+			mb = rss * 1024 / 1e6
+			printf "%-9s peak RSS %7.1f MB (%s %d MB)   wall %s   CPU %.1f s\n", name, mb, mb < limit ? "under" : "over", limit, wall, cpu
+			exit mb < limit ? 0 : 1
+		}' "$log" || over=1
 }
+over=0
 
-echo "date: $(date -u '+%Y-%m-%d %H:%M UTC')"
-echo "cpu:  $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2- | sed 's/^ *//'), $(nproc) cores"
-echo "input: $(du -m "$wav" | cut -f1) MB, $seconds s at 16 kHz mono 16-bit"
+echo "date:  $(date -u '+%Y-%m-%d %H:%M UTC')"
+echo "build: $(git rev-parse --short HEAD 2>/dev/null || echo unknown)$(git diff --quiet 2>/dev/null || echo ' (with uncommitted changes)'), $(go version | cut -d' ' -f3)"
+echo "cpu:   $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2- | sed 's/^ *//'), $(nproc) cores"
+echo "input: $(awk -v b="$(stat -c %s "$wav")" 'BEGIN {printf "%.1f", b / 1e6}') MB, $seconds s at 16 kHz mono 16-bit"
 measure timeline "$bin" timeline --model "$work/model.pnet" --out "$work/tl" "$wav"
 measure melspec "$bin" melspec --out "$work/mel" "$wav"
+echo "outputs: timeline CSV $(stat -c %s "$work/tl.timeline.csv") bytes, melspec CSV $(stat -c %s "$work/mel.csv") bytes"
+exit "$over"

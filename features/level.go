@@ -114,11 +114,11 @@ const ALevelBlockSamples = 1 << 20
 // whole signal, and the level is that of the blocks' mean squares
 // averaged with their lengths as weights. A signal of at most one block
 // gives exactly ALevelDBFS. In a longer one the last, shorter block is
-// zero-padded to a power of two for its DFT (its energy unchanged), so
-// that no block length with a large prime factor makes the DFT slow; the
-// level then differs from ALevelDBFS of the whole signal by the blocks'
-// edges only (TestALevelMeter). The level is indicative, as ALevelDBFS
-// says.
+// zero-padded to a whole block for its DFT (its energy unchanged), so
+// that no block length with a large prime factor makes the DFT slow and
+// the same transform serves every block; the level then differs from
+// ALevelDBFS of the whole signal by the blocks' edges only
+// (TestALevelMeter). The level is indicative, as ALevelDBFS says.
 type ALevelMeter struct {
 	rateHz  int
 	block   []float64 // samples of the block being filled
@@ -189,13 +189,9 @@ func (m *ALevelMeter) LevelDBFS() (float64, error) {
 	switch {
 	case m.blocks == 0: // the whole signal is one block: ALevelDBFS
 		m.finish(aWeightedMeanSquare(m.block, m.rateHz, fourier.NewFFT(len(m.block)), nil, nil), len(m.block))
-	case len(m.block) > 0: // the last block, zero-padded to a power of two
-		n := 2
-		for n < len(m.block) {
-			n *= 2
-		}
-		y := append(m.block, make([]float64, n-len(m.block))...)
-		m.finish(aWeightedMeanSquare(y, m.rateHz, fourier.NewFFT(n), nil, nil), n)
+	case len(m.block) > 0: // the last block, zero-padded to a whole block
+		y := append(m.block, make([]float64, ALevelBlockSamples-len(m.block))...)
+		m.finish(aWeightedMeanSquare(y, m.rateHz, m.fft, m.weights, m.coeffs), ALevelBlockSamples)
 	}
 	m.level = msToDB(m.energy / float64(m.n))
 	if m.blocks == 1 {

@@ -24,6 +24,10 @@
 //   - [VerifyRoundTrip], [VerifyC], [VerifyCFrontEnd] and [Onchip] check the
 //     export against the Go engine: read back, compiled C, C front end, an
 //     emulated Cortex-M4;
+//   - [Melspec] writes the log-mel matrix and the A-weighted level of a
+//     recording, and [Timeline] the classes of a recording window by
+//     window; both read recordings of any length block by block in
+//     bounded memory;
 //   - [Demo] runs all of it on the synthetic timber-yard corpus.
 //
 // Long calls report progress to a [Reporter] (nil: none); they never print.

@@ -13,6 +13,7 @@ set -eu
 out=${1:?usage: scripts/recipe/ablation.sh OUTDIR [CONFIG ...]}
 shift
 mkdir -p "$out"
+echo "cpu: $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2- | sed 's/^ *//'), $(nproc) cores; $(date -u +%F)"
 go build -o "$out/pipit" ./cmd/pipit
 run() { GOMAXPROCS=1 nice -n 19 "$out/pipit" "$@"; }
 data=$out/hard

@@ -237,26 +237,9 @@ func TestEvalRefusesOtherTestFold(t *testing.T) {
 		t.Fatalf("the training manifest: %v", err)
 	}
 	// Rotate the folds: 0 → 1 → 2 → 0.
-	lines := strings.Split(strings.TrimSpace(string(mustRead(t, manifest))), "\n")
-	head := strings.Split(lines[0], ",")
-	col := -1
-	for i, h := range head {
-		if h == "fold" {
-			col = i
-		}
-	}
-	if col < 0 {
-		t.Fatalf("manifest header %q has no fold column", lines[0])
-	}
-	for i := 1; i < len(lines); i++ {
-		f := strings.Split(lines[i], ",")
-		f[col] = map[string]string{"0": "1", "1": "2", "2": "0"}[f[col]]
-		lines[i] = strings.Join(f, ",")
-	}
-	rotated := filepath.Join(filepath.Dir(manifest), "rotated.csv")
-	if err := os.WriteFile(rotated, []byte(strings.Join(lines, "\n")+"\n"), 0o644); err != nil {
-		t.Fatal(err)
-	}
+	rotated := refold(t, manifest, "rotated.csv", func(label, fold string) string {
+		return map[string]string{"0": "1", "1": "2", "2": "0"}[fold]
+	})
 	if _, err := EvaluateFold(fm, Data{Path: rotated}, "", nil); !errors.Is(err, datasets.ErrNotTestFold) {
 		t.Errorf("eval on rotated folds: err %v, want ErrNotTestFold", err)
 	}
@@ -332,10 +315,33 @@ func TestCrossValidateCarriesOn(t *testing.T) {
 // validation fold the user never named.
 func TestTrainRefusesClassWithoutTrainingClips(t *testing.T) {
 	c, manifest := smallCorpus(t)
+	moved := refold(t, manifest, "moved.csv", func(label, fold string) string {
+		if label == c.Classes[0] && fold == "2" {
+			return "0" // the class's training clips go to the test fold
+		}
+		return fold
+	})
+	one := refold(t, manifest, "one.csv", func(string, string) string { return "0" })
+	for _, tc := range []struct{ path, want string }{{moved, "leave no training clip of class"}, {one, "3 for test + validation + training"}} {
+		cc, err := OpenCorpus(Data{Path: tc.path}, 0, 1)
+		if err != nil {
+			t.Fatal(err)
+		}
+		cfg := smallTrain(filepath.Join(t.TempDir(), "m.pnet"))
+		cfg.ValFold = ""
+		if _, err := Train(cc, cfg, nil); err == nil || !strings.Contains(err.Error(), tc.want) {
+			t.Errorf("%s: err %v, want %q", filepath.Base(tc.path), err, tc.want)
+		}
+	}
+}
+
+// refold writes a copy of manifest named name beside it, each row's fold
+// replaced by fold(label, fold), and returns its path.
+func refold(t *testing.T, manifest, name string, fold func(label, fold string) string) string {
+	t.Helper()
 	lines := strings.Split(strings.TrimSpace(string(mustRead(t, manifest))), "\n")
-	head := strings.Split(lines[0], ",")
 	col, lab := -1, -1
-	for i, h := range head {
+	for i, h := range strings.Split(lines[0], ",") {
 		switch h {
 		case "fold":
 			col = i
@@ -343,35 +349,17 @@ func TestTrainRefusesClassWithoutTrainingClips(t *testing.T) {
 			lab = i
 		}
 	}
-	one, moved := []string{lines[0]}, []string{lines[0]}
-	for _, l := range lines[1:] {
-		f := strings.Split(l, ",")
-		g := append([]string(nil), f...)
-		if f[lab] == c.Classes[0] && f[col] == "2" {
-			f[col] = "0" // the class's training clips go to the test fold
-		}
-		moved = append(moved, strings.Join(f, ","))
-		g[col] = "0"
-		one = append(one, strings.Join(g, ","))
+	if col < 0 || lab < 0 {
+		t.Fatalf("manifest header %q lacks a fold or label column", lines[0])
 	}
-	dir := filepath.Dir(manifest)
-	for _, tc := range []struct{ name, want string }{{"moved.csv", "leave no training clip of class"}, {"one.csv", "3 for test + validation + training"}} {
-		rows := moved
-		if tc.name == "one.csv" {
-			rows = one
-		}
-		p := filepath.Join(dir, tc.name)
-		if err := os.WriteFile(p, []byte(strings.Join(rows, "\n")+"\n"), 0o644); err != nil {
-			t.Fatal(err)
-		}
-		cc, err := OpenCorpus(Data{Path: p}, 0, 1)
-		if err != nil {
-			t.Fatal(err)
-		}
-		cfg := smallTrain(filepath.Join(t.TempDir(), "m.pnet"))
-		cfg.ValFold = ""
-		if _, err := Train(cc, cfg, nil); err == nil || !strings.Contains(err.Error(), tc.want) {
-			t.Errorf("%s: err %v, want %q", tc.name, err, tc.want)
-		}
+	for i := 1; i < len(lines); i++ {
+		f := strings.Split(lines[i], ",")
+		f[col] = fold(f[lab], f[col])
+		lines[i] = strings.Join(f, ",")
 	}
+	p := filepath.Join(filepath.Dir(manifest), name)
+	if err := os.WriteFile(p, []byte(strings.Join(lines, "\n")+"\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return p
 }

@@ -8,21 +8,12 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/pipit-audio/pipit"
-	"github.com/pipit-audio/pipit/datasets"
 )
 
 // timelineReport is what `pipit timeline --json` prints.
 type timelineReport struct {
-	Input      string             `json:"input"`
-	Model      string             `json:"model"`
-	Seconds    float64            `json:"seconds"`
-	Windows    int                `json:"windows"`
-	WindowSec  float64            `json:"window_seconds"`
-	Overlap    float64            `json:"overlap"`
-	Segments   []datasets.Segment `json:"segments"`
-	ClassTotal map[string]float64 `json:"seconds_per_class"`
-	CSV        string             `json:"csv"`
-	PNG        string             `json:"png"`
+	Model string `json:"model"`
+	pipit.TimelineResult
 }
 
 func newTimelineCmd() *cobra.Command {
@@ -91,6 +82,5 @@ func runTimeline(model, in, out string, overlap float64) (*timelineReport, error
 	if err != nil {
 		return nil, err
 	}
-	return &timelineReport{Input: r.Input, Model: model, Seconds: r.Seconds, Windows: r.Windows, WindowSec: r.WindowSec, Overlap: r.Overlap,
-		Segments: r.Segments, ClassTotal: r.ClassTotal, CSV: r.CSV, PNG: r.PNG}, nil
+	return &timelineReport{Model: model, TimelineResult: *r}, nil
 }

@@ -132,7 +132,7 @@ func ReplaceDir(dir string, o ReplaceOptions) (notes []string, err error) {
 		os.RemoveAll(tmp)
 		return notes, err
 	}
-	if err := syncDir(tmp); err != nil {
+	if err := SyncDir(tmp); err != nil {
 		os.RemoveAll(tmp)
 		return notes, err
 	}
@@ -144,7 +144,7 @@ func ReplaceDir(dir string, o ReplaceOptions) (notes []string, err error) {
 			os.RemoveAll(tmp)
 			return notes, err
 		}
-		return notes, syncDir(parent)
+		return notes, SyncDir(parent)
 	}
 	if !noExchange {
 		switch err := exchangeDirs(tmp, abs); {
@@ -152,7 +152,7 @@ func ReplaceDir(dir string, o ReplaceOptions) (notes []string, err error) {
 			if crashed(stepSwapped) {
 				return notes, errCrashed
 			}
-			if err := syncDir(parent); err != nil {
+			if err := SyncDir(parent); err != nil {
 				return notes, err
 			}
 			return notes, os.RemoveAll(tmp) // the old set now
@@ -182,7 +182,7 @@ func ReplaceDir(dir string, o ReplaceOptions) (notes []string, err error) {
 		os.RemoveAll(tmp)
 		return notes, err
 	}
-	if err := syncDir(parent); err != nil {
+	if err := SyncDir(parent); err != nil {
 		return notes, err
 	}
 	if crashed(stepMovedIn) {
@@ -266,7 +266,7 @@ func recoverLocked(dir, parent, base string, complete func(string) error) ([]str
 				why[q] = "older than the one put back"
 			}
 			olds = append(olds[:i:i], olds[i+1:]...)
-			if err := syncDir(parent); err != nil {
+			if err := SyncDir(parent); err != nil {
 				return notes, err
 			}
 			break
@@ -281,9 +281,10 @@ func recoverLocked(dir, parent, base string, complete func(string) error) ([]str
 	return notes, nil
 }
 
-// syncDir flushes a directory's entries to stable storage; where a
+// SyncDir flushes a directory's entries (a rename into it, say) to stable
+// storage, so that after a power cut it shows the renamed file; where a
 // directory cannot be synced (Windows) the error is ignored.
-func syncDir(dir string) error {
+func SyncDir(dir string) error {
 	f, err := os.Open(dir)
 	if err != nil {
 		return err
